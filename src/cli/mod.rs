@@ -1,0 +1,48 @@
+//! Command-line interface: one file per subcommand, each with one entry function.
+//!
+//! Parsing lives here; the work lives in the library modules. Every error reaches `main`
+//! as an [`Error`](crate::Error) and exits with code 2.
+
+use clap::{Parser, Subcommand};
+
+use crate::error::Result;
+
+pub mod check;
+pub mod fit;
+pub mod synth;
+pub mod table;
+
+/// Stochastic longevity-risk simulator.
+#[derive(Debug, Parser)]
+#[command(name = "tailspan", version, about, long_about = None)]
+pub struct Cli {
+    /// Print no progress bars.
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
+    /// The subcommand to run.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Write the invented demo experience and book.
+    Synth(synth::SynthArgs),
+    /// Validate a config and every input it names; print a summary.
+    Check(check::CheckArgs),
+    /// Print a deterministic life table from a law, as CSV.
+    Table(table::TableArgs),
+    /// Fit the configured model(s); write fit.json and residuals.
+    Fit(fit::FitArgs),
+}
+
+/// Runs the parsed command line.
+pub fn run(cli: Cli) -> Result<()> {
+    match cli.command {
+        Command::Synth(args) => synth::run(&args),
+        Command::Check(args) => check::run(&args),
+        Command::Table(args) => table::run(&args),
+        Command::Fit(args) => fit::run(&args, cli.quiet),
+    }
+}

@@ -1,0 +1,721 @@
+//! The run configuration (TOML), read once and checked before any work starts.
+//!
+//! The key names are a contract with users' scripts. Unknown keys are rejected so that a
+//! misspelt key never silently falls back to a default. Paths are resolved against the
+//! config file's folder so a config can be run from anywhere.
+
+use std::path::{Path, PathBuf};
+
+use serde::{Deserialize, Serialize};
+
+use crate::data::{Sex, Span};
+use crate::error::{Error, Result};
+
+/// The whole configuration file.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct Config {
+    /// Inputs and the fitting window.
+    pub data: DataConfig,
+    /// Which models to fit and how.
+    #[serde(default)]
+    pub model: ModelConfig,
+    /// Scenario generation.
+    #[serde(default)]
+    pub projection: ProjectionConfig,
+    /// Book valuation.
+    #[serde(default)]
+    pub valuation: ValuationConfig,
+    /// Capital measures.
+    #[serde(default)]
+    pub capital: CapitalConfig,
+    /// Where results go.
+    #[serde(default)]
+    pub output: OutputConfig,
+    /// Folder of the config file; input and output paths are relative to it.
+    #[serde(skip)]
+    pub base: PathBuf,
+    /// The config file itself, for messages.
+    #[serde(skip)]
+    pub file: PathBuf,
+}
+
+/// `[data]`: input files and the fitted window.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct DataConfig {
+    /// Experience CSV (`year,age,sex,deaths,exposure`).
+    pub experience: PathBuf,
+    /// Book CSV (`id,sex,age,amount,...`); optional for fit/project-only runs.
+    #[serde(default)]
+    pub book: Option<PathBuf>,
+    /// Fitted ages, inclusive `[first, last]`.
+    pub ages: [i32; 2],
+    /// Fitted calendar years, inclusive `[first, last]`.
+    pub years: [i32; 2],
+    /// Sexes to fit and project.
+    #[serde(default = "default_sexes")]
+    pub sexes: Vec<Sex>,
+}
+
+/// A single model kind or a list of them.
+#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[serde(untagged)]
+pub enum KindList {
+    /// One kind.
+    One(ModelKind),
+    /// Several kinds, fitted and ranked; the first is projected.
+    Many(Vec<ModelKind>),
+}
+
+/// Mortality model families.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq, Hash)]
+#[serde(rename_all = "kebab-case")]
+pub enum ModelKind {
+    /// Lee–Carter: log m = a_x + b_x k_t.
+    LeeCarter,
+    /// Cairns–Blake–Dowd (M5): logit q = k1_t + (x − x̄) k2_t.
+    Cbd,
+}
+
+impl ModelKind {
+    /// The name used in files and messages.
+    pub fn name(self) -> &'static str {
+        match self {
+            ModelKind::LeeCarter => "lee-carter",
+            ModelKind::Cbd => "cbd",
+        }
+    }
+}
+
+/// How a model's parameters are estimated.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum FitMethod {
+    /// Singular value decomposition of centred log rates (Lee & Carter 1992).
+    Svd,
+    /// Poisson maximum likelihood (Brouhns, Denuit & Vermunt 2002).
+    Poisson,
+    /// Binomial maximum likelihood on initial exposures (CBD).
+    Binomial,
+}
+
+/// Old-age closure above the top fitted age.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum ClosureKind {
+    /// Kannisto logistic law fitted to the top fitted ages.
+    Kannisto,
+}
+
+/// `[model]`.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ModelConfig {
+    /// Model kind(s); the first is the one projected.
+    #[serde(default = "default_kind")]
+    pub kind: KindList,
+    /// Lee–Carter fit method (`svd` or `poisson`); CBD always fits `binomial`.
+    #[serde(default)]
+    pub fit: Option<FitMethod>,
+    /// Re-estimate k_t after an SVD fit so fitted deaths match observed deaths each year.
+    #[serde(default)]
+    pub refit_kt: bool,
+    /// Old-age closure law.
+    #[serde(default = "default_closure")]
+    pub closure: ClosureKind,
+    /// Number of top fitted ages the closure law is fitted to.
+    #[serde(default = "default_closure_fit_ages")]
+    pub closure_fit_ages: usize,
+    /// Highest age; q is 1 there.
+    #[serde(default = "default_max_age")]
+    pub max_age: i32,
+    /// Convergence tolerance on the change in log-likelihood between iterations.
+    #[serde(default = "default_tolerance")]
+    pub tolerance: f64,
+    /// Iteration cap for iterative fits; hitting it is an error.
+    #[serde(default = "default_max_iterations")]
+    pub max_iterations: usize,
+}
+
+/// Parameter uncertainty switch: `true`/`false` or a named method.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(untagged)]
+pub enum UncertaintySetting {
+    /// `true` means drift uncertainty; `false` means none.
+    Switch(bool),
+    /// A named method.
+    Method(UncertaintyMethod),
+}
+
+/// Parameter-uncertainty methods.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum UncertaintyMethod {
+    /// No parameter uncertainty.
+    None,
+    /// Drift drawn per scenario from its estimation distribution.
+    Drift,
+    /// Semi-parametric Poisson bootstrap of the deaths (refit per scenario).
+    Bootstrap,
+}
+
+impl UncertaintySetting {
+    /// The method this setting selects.
+    pub fn method(self) -> UncertaintyMethod {
+        match self {
+            UncertaintySetting::Switch(true) => UncertaintyMethod::Drift,
+            UncertaintySetting::Switch(false) => UncertaintyMethod::None,
+            UncertaintySetting::Method(m) => m,
+        }
+    }
+}
+
+/// `[projection]`.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ProjectionConfig {
+    /// Number of stochastic scenarios.
+    #[serde(default = "default_scenarios")]
+    pub scenarios: usize,
+    /// Seed of every random stream.
+    #[serde(default = "default_seed")]
+    pub seed: u64,
+    /// Years projected after the last fitted year.
+    #[serde(default = "default_horizon")]
+    pub horizon: usize,
+    /// `false`: only the central path, as scenario 0.
+    #[serde(default = "default_true")]
+    pub noise: bool,
+    /// Parameter uncertainty.
+    #[serde(default = "default_uncertainty")]
+    pub parameter_uncertainty: UncertaintySetting,
+}
+
+/// Payment timing within each period.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum Timing {
+    /// Payments at the start of each period (annuity-due).
+    Advance,
+    /// Payments at the end of each period (annuity-immediate).
+    Arrears,
+}
+
+/// A mortality multiplier for a sex and an age band (the book's own level).
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct MortalityFactor {
+    /// Sex the factor applies to.
+    pub sex: Sex,
+    /// Ages at which the rate is multiplied, inclusive `[first, last]`.
+    pub ages: [i32; 2],
+    /// Multiplier of the population q.
+    pub factor: f64,
+}
+
+/// `[valuation]`.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct ValuationConfig {
+    /// Valuation year (start of), after the last fitted year.
+    #[serde(default)]
+    pub year: Option<i32>,
+    /// Payment timing.
+    #[serde(default = "default_timing")]
+    pub timing: Timing,
+    /// Payments a year.
+    #[serde(default = "default_frequency")]
+    pub frequency: u32,
+    /// Flat annual effective interest rate (0.03 is 3 %).
+    #[serde(default)]
+    pub rate: Option<f64>,
+    /// Spot-rate curve CSV (`term,rate`), instead of `rate`.
+    #[serde(default)]
+    pub curve: Option<PathBuf>,
+    /// Simulate individual deaths as well as trend.
+    #[serde(default = "default_true")]
+    pub idiosyncratic: bool,
+    /// Extra horizons for the truncated expectations (besides `max_age`).
+    #[serde(default)]
+    pub horizons: Vec<usize>,
+    /// The book's mortality level relative to the population, by sex and age band.
+    #[serde(default)]
+    pub mortality_factors: Vec<MortalityFactor>,
+}
+
+/// `[capital]`.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct CapitalConfig {
+    /// Confidence levels for VaR and TVaR.
+    #[serde(default = "default_levels")]
+    pub levels: Vec<f64>,
+    /// Standard-formula decrease in mortality (0.20 is 20 %).
+    #[serde(default = "default_stress")]
+    pub standard_stress: f64,
+    /// Compute one-year capital by re-calibration.
+    #[serde(default)]
+    pub one_year: bool,
+    /// Scenarios for the one-year capital.
+    #[serde(default = "default_one_year_scenarios")]
+    pub one_year_scenarios: usize,
+}
+
+/// Parquet compression codec.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum Compression {
+    /// Zstandard (default: best size for little time).
+    Zstd,
+    /// Snappy (fastest).
+    Snappy,
+    /// None.
+    None,
+}
+
+/// `[output]`.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct OutputConfig {
+    /// Output folder.
+    #[serde(default = "default_folder")]
+    pub folder: PathBuf,
+    /// Write the large `paths.parquet`.
+    #[serde(default = "default_true")]
+    pub paths: bool,
+    /// Parquet compression.
+    #[serde(default = "default_compression")]
+    pub compression: Compression,
+}
+
+fn default_sexes() -> Vec<Sex> {
+    Sex::ALL.to_vec()
+}
+fn default_kind() -> KindList {
+    KindList::One(ModelKind::LeeCarter)
+}
+fn default_closure() -> ClosureKind {
+    ClosureKind::Kannisto
+}
+fn default_closure_fit_ages() -> usize {
+    10
+}
+fn default_max_age() -> i32 {
+    120
+}
+fn default_tolerance() -> f64 {
+    1e-8
+}
+fn default_max_iterations() -> usize {
+    1000
+}
+fn default_scenarios() -> usize {
+    1000
+}
+fn default_seed() -> u64 {
+    1
+}
+fn default_horizon() -> usize {
+    80
+}
+fn default_true() -> bool {
+    true
+}
+fn default_uncertainty() -> UncertaintySetting {
+    UncertaintySetting::Switch(false)
+}
+fn default_timing() -> Timing {
+    Timing::Advance
+}
+fn default_frequency() -> u32 {
+    1
+}
+fn default_levels() -> Vec<f64> {
+    vec![0.995]
+}
+fn default_stress() -> f64 {
+    0.20
+}
+fn default_one_year_scenarios() -> usize {
+    1000
+}
+fn default_folder() -> PathBuf {
+    PathBuf::from("out")
+}
+fn default_compression() -> Compression {
+    Compression::Zstd
+}
+
+impl Default for ModelConfig {
+    fn default() -> Self {
+        ModelConfig {
+            kind: default_kind(),
+            fit: None,
+            refit_kt: false,
+            closure: default_closure(),
+            closure_fit_ages: default_closure_fit_ages(),
+            max_age: default_max_age(),
+            tolerance: default_tolerance(),
+            max_iterations: default_max_iterations(),
+        }
+    }
+}
+
+impl Default for ProjectionConfig {
+    fn default() -> Self {
+        ProjectionConfig {
+            scenarios: default_scenarios(),
+            seed: default_seed(),
+            horizon: default_horizon(),
+            noise: true,
+            parameter_uncertainty: default_uncertainty(),
+        }
+    }
+}
+
+impl Default for ValuationConfig {
+    fn default() -> Self {
+        ValuationConfig {
+            year: None,
+            timing: default_timing(),
+            frequency: default_frequency(),
+            rate: None,
+            curve: None,
+            idiosyncratic: true,
+            horizons: Vec::new(),
+            mortality_factors: Vec::new(),
+        }
+    }
+}
+
+impl Default for CapitalConfig {
+    fn default() -> Self {
+        CapitalConfig {
+            levels: default_levels(),
+            standard_stress: default_stress(),
+            one_year: false,
+            one_year_scenarios: default_one_year_scenarios(),
+        }
+    }
+}
+
+impl Default for OutputConfig {
+    fn default() -> Self {
+        OutputConfig {
+            folder: default_folder(),
+            paths: true,
+            compression: default_compression(),
+        }
+    }
+}
+
+impl ModelConfig {
+    /// The kinds listed, first (projected) kind first.
+    pub fn kinds(&self) -> Vec<ModelKind> {
+        match &self.kind {
+            KindList::One(k) => vec![*k],
+            KindList::Many(ks) => ks.clone(),
+        }
+    }
+
+    /// The fit method for `kind`: the configured one for Lee–Carter (default Poisson),
+    /// binomial for CBD.
+    pub fn method_for(&self, kind: ModelKind) -> FitMethod {
+        match kind {
+            ModelKind::LeeCarter => match self.fit {
+                Some(FitMethod::Svd) => FitMethod::Svd,
+                _ => FitMethod::Poisson,
+            },
+            ModelKind::Cbd => FitMethod::Binomial,
+        }
+    }
+}
+
+impl Config {
+    /// Reads, parses and checks the config at `path`.
+    pub fn load(path: &Path) -> Result<Config> {
+        let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+        let text = String::from_utf8(bytes).map_err(|e| Error::File {
+            file: path.to_path_buf(),
+            rule: format!(
+                "not valid UTF-8 (byte {} is not part of a UTF-8 character)",
+                e.utf8_error().valid_up_to()
+            ),
+        })?;
+        Config::parse(&text, path)
+    }
+
+    /// Parses and checks config text; `path` is used for messages and relative paths.
+    pub fn parse(text: &str, path: &Path) -> Result<Config> {
+        let de = toml::Deserializer::parse(text).map_err(|e| Error::File {
+            file: path.to_path_buf(),
+            rule: format!("not valid TOML: {}", e.to_string().trim()),
+        })?;
+        let mut config: Config = serde_path_to_error::deserialize(de).map_err(|e| {
+            let key = e.path().to_string();
+            let inner = e.into_inner();
+            let message = inner.message().trim().to_string();
+            let key = if key == "." {
+                "(top level)".to_string()
+            } else {
+                key
+            };
+            Error::config(path, key, message)
+        })?;
+        config.file = path.to_path_buf();
+        config.base = path
+            .parent()
+            .map(Path::to_path_buf)
+            .unwrap_or_else(|| PathBuf::from("."));
+        config.check()?;
+        Ok(config)
+    }
+
+    /// A path from the config resolved against the config's folder.
+    pub fn resolve(&self, relative: &Path) -> PathBuf {
+        if relative.is_absolute() {
+            relative.to_path_buf()
+        } else {
+            self.base.join(relative)
+        }
+    }
+
+    /// The fitted ages.
+    pub fn ages(&self) -> Span {
+        Span {
+            first: self.data.ages[0],
+            last: self.data.ages[1],
+        }
+    }
+
+    /// The fitted years.
+    pub fn years(&self) -> Span {
+        Span {
+            first: self.data.years[0],
+            last: self.data.years[1],
+        }
+    }
+
+    /// The valuation year: configured, or the year after the last fitted year.
+    pub fn valuation_year(&self) -> i32 {
+        self.valuation.year.unwrap_or(self.data.years[1] + 1)
+    }
+
+    /// The output folder resolved against the config's folder.
+    pub fn output_folder(&self) -> PathBuf {
+        self.resolve(&self.output.folder)
+    }
+
+    fn err(&self, key: &str, rule: impl Into<String>) -> Error {
+        Error::config(&self.file, key, rule)
+    }
+
+    /// Checks every rule that serde's types cannot express.
+    fn check(&self) -> Result<()> {
+        let d = &self.data;
+        if d.ages[0] < 0 || d.ages[1] < d.ages[0] || d.ages[1] > 130 {
+            return Err(self.err(
+                "data.ages",
+                format!(
+                    "must be [first, last] with 0 <= first <= last <= 130, found {:?}",
+                    d.ages
+                ),
+            ));
+        }
+        if d.ages[1] - d.ages[0] < 1 {
+            return Err(self.err("data.ages", "needs at least two ages to fit a model"));
+        }
+        if d.years[1] < d.years[0] || d.years[0] < 1700 || d.years[1] > 2300 {
+            return Err(self.err(
+                "data.years",
+                format!(
+                    "must be [first, last] with 1700 <= first <= last <= 2300, found {:?}",
+                    d.years
+                ),
+            ));
+        }
+        if d.years[1] - d.years[0] < 2 {
+            return Err(self.err(
+                "data.years",
+                "needs at least three years to estimate a random walk",
+            ));
+        }
+        if d.sexes.is_empty() {
+            return Err(self.err("data.sexes", "must list at least one of \"F\", \"M\""));
+        }
+        let mut sexes = d.sexes.clone();
+        sexes.sort();
+        sexes.dedup();
+        if sexes.len() != d.sexes.len() {
+            return Err(self.err("data.sexes", "lists a sex twice"));
+        }
+
+        let m = &self.model;
+        let kinds = m.kinds();
+        if kinds.is_empty() {
+            return Err(self.err("model.kind", "must name at least one model"));
+        }
+        if m.fit == Some(FitMethod::Binomial) && kinds.contains(&ModelKind::LeeCarter) {
+            return Err(self.err(
+                "model.fit",
+                "`binomial` is the CBD fit; Lee–Carter takes `svd` or `poisson`",
+            ));
+        }
+        if m.max_age <= d.ages[1] || m.max_age > 130 {
+            return Err(self.err(
+                "model.max_age",
+                format!(
+                    "must be above the top fitted age {} and at most 130, found {}",
+                    d.ages[1], m.max_age
+                ),
+            ));
+        }
+        let n_ages = (d.ages[1] - d.ages[0] + 1) as usize;
+        if m.closure_fit_ages < 2 || m.closure_fit_ages > n_ages {
+            return Err(self.err(
+                "model.closure_fit_ages",
+                format!("must be between 2 and the number of fitted ages ({n_ages})"),
+            ));
+        }
+        if !(m.tolerance.is_finite() && m.tolerance > 0.0) {
+            return Err(self.err("model.tolerance", "must be a positive number"));
+        }
+        if m.max_iterations == 0 {
+            return Err(self.err("model.max_iterations", "must be at least 1"));
+        }
+
+        let p = &self.projection;
+        if p.scenarios == 0 {
+            return Err(self.err("projection.scenarios", "must be at least 1"));
+        }
+        if p.horizon == 0 || p.horizon > 200 {
+            return Err(self.err(
+                "projection.horizon",
+                format!("must be between 1 and 200 years, found {}", p.horizon),
+            ));
+        }
+
+        let v = &self.valuation;
+        if let Some(year) = v.year {
+            if year <= d.years[1] {
+                return Err(self.err(
+                    "valuation.year",
+                    format!(
+                        "must be after the last fitted year {}, found {year}",
+                        d.years[1]
+                    ),
+                ));
+            }
+            if year > d.years[1] + p.horizon as i32 {
+                return Err(self.err(
+                    "valuation.year",
+                    format!(
+                        "must lie within the projection (up to {}), found {year}",
+                        d.years[1] + p.horizon as i32
+                    ),
+                ));
+            }
+        }
+        if ![1, 2, 4, 12].contains(&v.frequency) && !(1..=365).contains(&v.frequency) {
+            return Err(self.err("valuation.frequency", "must be between 1 and 365"));
+        }
+        match (v.rate, &v.curve) {
+            (Some(_), Some(_)) => {
+                return Err(self.err("valuation.rate", "give either `rate` or `curve`, not both"));
+            }
+            (Some(r), None) => {
+                if !r.is_finite() || r <= -1.0 {
+                    return Err(self.err("valuation.rate", "must be a number above -1"));
+                }
+                if r.abs() > 0.25 {
+                    return Err(self.err(
+                        "valuation.rate",
+                        format!(
+                            "{r} is an annual rate of {:.0} %; write rates as decimals (0.03 for 3 %)",
+                            r * 100.0
+                        ),
+                    ));
+                }
+            }
+            _ => {}
+        }
+        if v.horizons.contains(&0) {
+            return Err(self.err("valuation.horizons", "horizons must be at least 1 year"));
+        }
+        for (i, f) in v.mortality_factors.iter().enumerate() {
+            let key = format!("valuation.mortality_factors[{i}]");
+            if !(f.factor.is_finite() && f.factor > 0.0 && f.factor <= 10.0) {
+                return Err(self.err(&format!("{key}.factor"), "must be in (0, 10]"));
+            }
+            if f.ages[1] < f.ages[0] {
+                return Err(self.err(
+                    &format!("{key}.ages"),
+                    "must be [first, last], first <= last",
+                ));
+            }
+        }
+
+        let c = &self.capital;
+        for level in &c.levels {
+            if !(*level > 0.0 && *level < 1.0) {
+                return Err(self.err(
+                    "capital.levels",
+                    format!("levels are probabilities in (0, 1) such as 0.995, found {level}"),
+                ));
+            }
+        }
+        if !(c.standard_stress >= 0.0 && c.standard_stress < 1.0) {
+            return Err(self.err(
+                "capital.standard_stress",
+                format!(
+                    "must be a fraction in [0, 1) such as 0.20 for 20 %, found {}",
+                    c.standard_stress
+                ),
+            ));
+        }
+        if c.one_year && c.one_year_scenarios == 0 {
+            return Err(self.err("capital.one_year_scenarios", "must be at least 1"));
+        }
+        Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const MINIMAL: &str = r#"
+[data]
+experience = "e.csv"
+ages = [55, 100]
+years = [1975, 2024]
+"#;
+
+    #[test]
+    fn minimal_config_takes_defaults() {
+        let c = Config::parse(MINIMAL, Path::new("dir/c.toml")).unwrap();
+        assert_eq!(c.model.kinds(), vec![ModelKind::LeeCarter]);
+        assert_eq!(c.valuation_year(), 2025);
+        assert_eq!(c.resolve(Path::new("e.csv")), PathBuf::from("dir/e.csv"));
+    }
+
+    #[test]
+    fn unknown_key_is_named() {
+        let text = format!("{MINIMAL}\n[projection]\nscenarioz = 3\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("scenarioz"), "{err}");
+        assert!(err.contains("projection"), "{err}");
+    }
+
+    #[test]
+    fn percent_rate_is_rejected_with_hint() {
+        let text = format!("{MINIMAL}\n[valuation]\nrate = 3\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("valuation.rate"), "{err}");
+    }
+}

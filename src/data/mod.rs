@@ -1,0 +1,19 @@
+//! Inputs: the experience grid, the book, the config and the discount curve.
+//!
+//! Everything a user hands in is loaded and validated here, once, so the rest of the
+//! crate can assume clean data. Every rejection names the file, row and column or the
+//! config key, and the rule broken.
+
+pub mod book;
+pub mod config;
+pub mod curve;
+pub mod experience;
+pub mod sex;
+pub mod span;
+
+pub use book::{Book, Policy};
+pub use config::Config;
+pub use curve::DiscountCurve;
+pub use experience::{Experience, Population};
+pub use sex::Sex;
+pub use span::Span;

@@ -1,0 +1,64 @@
+//! Inclusive integer ranges of ages or calendar years.
+
+use serde::{Deserialize, Serialize};
+
+/// An inclusive range `first..=last` of integer ages or calendar years.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub struct Span {
+    /// First value, inclusive.
+    pub first: i32,
+    /// Last value, inclusive.
+    pub last: i32,
+}
+
+impl Span {
+    /// A span from `first` to `last` inclusive; `None` if `last < first`.
+    pub fn new(first: i32, last: i32) -> Option<Self> {
+        (last >= first).then_some(Span { first, last })
+    }
+
+    /// Number of values in the span.
+    pub fn len(&self) -> usize {
+        (self.last - self.first + 1) as usize
+    }
+
+    /// Always false: a span holds at least one value.
+    pub fn is_empty(&self) -> bool {
+        false
+    }
+
+    /// Whether `value` lies in the span.
+    pub fn contains(&self, value: i32) -> bool {
+        (self.first..=self.last).contains(&value)
+    }
+
+    /// Whether `other` lies wholly inside this span.
+    pub fn covers(&self, other: &Span) -> bool {
+        self.first <= other.first && other.last <= self.last
+    }
+
+    /// Zero-based position of `value`, if it lies in the span.
+    pub fn index(&self, value: i32) -> Option<usize> {
+        self.contains(value).then(|| (value - self.first) as usize)
+    }
+
+    /// The values in order.
+    pub fn iter(&self) -> impl Iterator<Item = i32> + use<> {
+        self.first..=self.last
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn index_and_len_agree() {
+        let s = Span::new(55, 100).unwrap();
+        assert_eq!(s.len(), 46);
+        assert_eq!(s.index(55), Some(0));
+        assert_eq!(s.index(100), Some(45));
+        assert_eq!(s.index(101), None);
+        assert!(Span::new(3, 2).is_none());
+    }
+}

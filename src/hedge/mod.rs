@@ -1,0 +1,1 @@
+//! Longevity hedges: indemnity swap and q-forward.

@@ -1,0 +1,5 @@
+//! Output: atomic writers for JSON, CSV and Parquet, the report and its charts.
+
+pub mod atomic;
+
+pub use atomic::{AtomicFile, write_bytes, write_json};

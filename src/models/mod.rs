@@ -1,0 +1,71 @@
+//! Stochastic mortality models: fit to one population's experience, then drive projections.
+//!
+//! Each model is a parameters value (checked once) whose `fit` returns a separate fitted
+//! type. The projection engine only sees [`FittedModel`]: a set of period indices with a
+//! history, and a map from a year's indices to that year's one-year rates at every age up
+//! to `max_age`. Adding a model is adding one file that implements it.
+
+use nalgebra::DMatrix;
+use serde::Serialize;
+
+use crate::data::{Population, Span};
+
+/// Goodness-of-fit measures every fit reports.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct FitDiagnostics {
+    /// Maximised log-likelihood (Poisson for log-rate models, binomial for CBD).
+    pub log_likelihood: f64,
+    /// Deviance against the saturated model.
+    pub deviance: f64,
+    /// Effective number of parameters (after identifiability constraints).
+    pub parameters: usize,
+    /// Number of cells fitted.
+    pub observations: usize,
+    /// Akaike information criterion: 2 ν − 2 ℓ.
+    pub aic: f64,
+    /// Bayesian information criterion: ν ln n − 2 ℓ.
+    pub bic: f64,
+    /// Iterations the fit took (0 for closed-form fits).
+    pub iterations: usize,
+}
+
+/// What the projection engine needs from any fitted model.
+pub trait FittedModel: Send + Sync {
+    /// Model name as written in files (`lee-carter`, `cbd`).
+    fn name(&self) -> &'static str;
+
+    /// The population's fitted ages.
+    fn ages(&self) -> Span;
+
+    /// The fitted calendar years.
+    fn years(&self) -> Span;
+
+    /// Names of the period indices, e.g. `["k"]` or `["k1", "k2"]`.
+    fn factor_names(&self) -> &'static [&'static str];
+
+    /// Fitted period indices: one row per index, one column per fitted year.
+    fn factors(&self) -> &DMatrix<f64>;
+
+    /// One-year death rates q at ages `ages().first ..= max_age` for a year whose period
+    /// indices are `factors`; rates above the top fitted age come from the closure and q is
+    /// 1 at `max_age`. `out` has length `max_age − ages().first + 1`.
+    fn rates(&self, factors: &[f64], out: &mut [f64]);
+
+    /// Highest age of the rates; q is 1 there.
+    fn max_age(&self) -> i32;
+
+    /// Fit quality.
+    fn diagnostics(&self) -> &FitDiagnostics;
+
+    /// Deviance residuals, ages × years.
+    fn residuals(&self) -> DMatrix<f64>;
+
+    /// Fitted parameters by name, as written to `fit.json`.
+    fn parameters_json(&self) -> serde_json::Value;
+}
+
+/// A checked model specification that can be fitted to a population.
+pub trait MortalityModel: Send + Sync {
+    /// Fits the model to one population.
+    fn fit(&self, population: &Population) -> crate::Result<Box<dyn FittedModel>>;
+}

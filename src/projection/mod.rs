@@ -1,0 +1,1 @@
+//! Scenario generation: time-series models of the period indices and random streams.

@@ -1,0 +1,1 @@
+//! Risk measures: quantiles, VaR/TVaR, capital and shocks.

@@ -1,0 +1,1 @@
+//! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
