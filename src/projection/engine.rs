@@ -1,0 +1,472 @@
+//! Parallel scenario generation streamed to Parquet, optionally one shard of the run.
+//!
+//! Scenarios are generated and encoded in fixed-size chunks of consecutive scenario
+//! numbers, several chunks at a time on the rayon pool, while the previous batch of
+//! chunks is appended to the files in order. The chunking depends only on the scenario
+//! range, never on the thread count, so a run's files are byte-identical on 1 or 16
+//! threads; a shard is a contiguous block of scenarios, so the shards' rows together are
+//! exactly the rows of the whole run.
+
+use std::ops::Range;
+use std::path::PathBuf;
+use std::str::FromStr;
+use std::sync::Arc;
+
+use arrow_array::types::Int8Type;
+use arrow_array::{
+    ArrayRef, DictionaryArray, Float64Array, Int8Array, Int16Array, StringArray, UInt32Array,
+};
+use arrow_schema::{DataType, Field, Schema, SchemaRef};
+
+use crate::data::config::Compression;
+use crate::error::{Error, Result};
+use crate::projection::period::{PERIOD_AGE, complete_expectancy};
+use crate::projection::scenarios::{Projector, ScenarioPaths};
+use crate::projection::sink::{EncodedRowGroup, Encoder, ParquetSink, properties};
+
+/// Rows of `paths.parquet` per row group (about); a chunk holds whole scenarios. Half a
+/// million rows keeps each worker's buffers near 10 MB and row groups large enough to
+/// read efficiently.
+const CHUNK_ROWS: usize = 1 << 19;
+
+/// Shard K of N (1-based): a contiguous block of the run's scenarios.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Shard {
+    /// K, from 1.
+    pub index: usize,
+    /// N, at least 1.
+    pub count: usize,
+}
+
+impl FromStr for Shard {
+    type Err = Error;
+
+    fn from_str(s: &str) -> Result<Shard> {
+        let bad = || {
+            Error::argument(
+                "--shard",
+                format!("must be K/N with 1 <= K <= N, such as 2/8, found `{s}`"),
+            )
+        };
+        let (k, n) = s.split_once('/').ok_or_else(bad)?;
+        let index: usize = k.trim().parse().map_err(|_| bad())?;
+        let count: usize = n.trim().parse().map_err(|_| bad())?;
+        if index == 0 || count == 0 || index > count {
+            return Err(bad());
+        }
+        Ok(Shard { index, count })
+    }
+}
+
+impl Shard {
+    /// This shard's block of `ids`: block K of N nearly equal contiguous blocks.
+    pub fn range(&self, ids: Range<u64>) -> Result<Range<u64>> {
+        let total = ids.end - ids.start;
+        if self.count as u64 > total {
+            return Err(Error::argument(
+                "--shard",
+                format!(
+                    "{} shards for {total} scenarios (scenario 0, the central path, included); use at most {total}",
+                    self.count
+                ),
+            ));
+        }
+        let at = |k: u64| ids.start + k * total / self.count as u64;
+        Ok(at(self.index as u64 - 1)..at(self.index as u64))
+    }
+
+    /// `stem.part-K-of-N.parquet`.
+    pub fn file_name(&self, stem: &str) -> String {
+        format!("{stem}.part-{}-of-{}.parquet", self.index, self.count)
+    }
+}
+
+/// Where and what to write.
+#[derive(Debug, Clone)]
+pub struct OutputOptions {
+    /// Output folder.
+    pub folder: PathBuf,
+    /// Write `paths.parquet` (the largest file).
+    pub paths: bool,
+    /// Parquet codec.
+    pub compression: Compression,
+    /// Write only this shard, to `part-K-of-N` files.
+    pub shard: Option<Shard>,
+}
+
+impl OutputOptions {
+    /// The path of the file `stem` (`paths`, `factors`, `period`).
+    pub fn file(&self, stem: &str) -> PathBuf {
+        let name = match self.shard {
+            Some(shard) => shard.file_name(stem),
+            None => format!("{stem}.parquet"),
+        };
+        self.folder.join(name)
+    }
+}
+
+/// What a run wrote.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Written {
+    /// Scenarios written.
+    pub scenarios: Range<u64>,
+    /// Files written, in the order paths, factors, period.
+    pub files: Vec<PathBuf>,
+    /// Rows of `paths.parquet` (0 when it is not written).
+    pub path_rows: u64,
+    /// Whether `paths.parquet` has an `m` column.
+    pub central_rates: bool,
+}
+
+/// Whether the models are log-rate models, whose central rate m = −ln(1 − q) is written
+/// beside q. CBD-type models (logit q) model q itself, so `m` is left out for them rather
+/// than written as a derived number nobody fitted.
+pub fn has_central_rate(model_name: &str) -> bool {
+    !(model_name.starts_with("cbd") || model_name == "m6" || model_name == "m7")
+}
+
+fn sex_field(name: &str) -> Field {
+    Field::new(
+        name,
+        DataType::Dictionary(Box::new(DataType::Int8), Box::new(DataType::Utf8)),
+        false,
+    )
+}
+
+/// Schema of `paths.parquet`; `m` is nullable because it is infinite (written as null)
+/// where q = 1.
+pub fn paths_schema(central_rates: bool) -> SchemaRef {
+    let mut fields = vec![
+        Field::new("scenario", DataType::UInt32, false),
+        sex_field("sex"),
+        Field::new("year", DataType::Int16, false),
+        Field::new("age", DataType::Int16, false),
+        Field::new("q", DataType::Float64, false),
+    ];
+    if central_rates {
+        fields.push(Field::new("m", DataType::Float64, true));
+    }
+    Arc::new(Schema::new(fields))
+}
+
+/// Schema of `factors.parquet`.
+pub fn factors_schema() -> SchemaRef {
+    Arc::new(Schema::new(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        sex_field("sex"),
+        Field::new("year", DataType::Int16, false),
+        sex_field("factor"),
+        Field::new("value", DataType::Float64, false),
+    ]))
+}
+
+/// Schema of `period.parquet`.
+pub fn period_schema() -> SchemaRef {
+    Arc::new(Schema::new(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        sex_field("sex"),
+        Field::new("year", DataType::Int16, false),
+        Field::new("e65", DataType::Float64, false),
+    ]))
+}
+
+/// The rows of one chunk of scenarios, column by column.
+#[derive(Default)]
+struct Columns {
+    paths: Option<PathColumns>,
+    factors: KeyColumns,
+    factor_keys: Vec<i8>,
+    factor_values: Vec<f64>,
+    period: Option<(KeyColumns, Vec<f64>)>,
+}
+
+#[derive(Default)]
+struct KeyColumns {
+    scenario: Vec<u32>,
+    sex: Vec<i8>,
+    year: Vec<i16>,
+}
+
+#[derive(Default)]
+struct PathColumns {
+    keys: KeyColumns,
+    age: Vec<i16>,
+    q: Vec<f64>,
+    m: Option<Vec<Option<f64>>>,
+}
+
+impl KeyColumns {
+    fn push(&mut self, scenario: u64, sex: usize, year: i32, n: usize) {
+        self.scenario
+            .extend(std::iter::repeat_n(scenario as u32, n));
+        self.sex.extend(std::iter::repeat_n(sex as i8, n));
+        self.year.extend(std::iter::repeat_n(year as i16, n));
+    }
+
+    fn arrays(self, labels: &Arc<StringArray>) -> Result<Vec<ArrayRef>> {
+        Ok(vec![
+            Arc::new(UInt32Array::from(self.scenario)),
+            dictionary(self.sex, labels)?,
+            Arc::new(Int16Array::from(self.year)),
+        ])
+    }
+}
+
+fn dictionary(keys: Vec<i8>, labels: &Arc<StringArray>) -> Result<ArrayRef> {
+    let array = DictionaryArray::<Int8Type>::try_new(Int8Array::from(keys), labels.clone())
+        .map_err(|e| Error::Numerical(format!("building a label column: {e}")))?;
+    Ok(Arc::new(array))
+}
+
+/// One chunk's row group for each of paths, factors and period (`None` where not written).
+type ChunkGroups = [Option<EncodedRowGroup>; 3];
+
+struct Layout {
+    sex_labels: Arc<StringArray>,
+    factor_labels: Arc<StringArray>,
+    /// Offset of each sex's first index name in `factor_labels`.
+    factor_offsets: Vec<usize>,
+    paths: bool,
+    central_rates: bool,
+    period_index: Option<usize>,
+}
+
+/// Generates and encodes scenarios `range` into one row group per file.
+fn encode_chunk(
+    projector: &Projector,
+    layout: &Layout,
+    range: Range<u64>,
+    encoders: &[Option<Arc<Encoder>>; 3],
+) -> Result<ChunkGroups> {
+    let mut buf = projector.buffer();
+    let (years, ages) = (buf.years(), buf.ages());
+    let n_sexes = buf.sexes().len();
+    let per_scenario = n_sexes * years.len() * ages.len();
+    let count = (range.end - range.start) as usize;
+    let mut cols = Columns::default();
+    if layout.paths {
+        let rows = count * per_scenario;
+        cols.paths = Some(PathColumns {
+            keys: KeyColumns {
+                scenario: Vec::with_capacity(rows),
+                sex: Vec::with_capacity(rows),
+                year: Vec::with_capacity(rows),
+            },
+            age: Vec::with_capacity(rows),
+            q: Vec::with_capacity(rows),
+            m: layout.central_rates.then(|| Vec::with_capacity(rows)),
+        });
+    }
+    if layout.period_index.is_some() {
+        cols.period = Some(Default::default());
+    }
+    let ages_column: Vec<i16> = ages.iter().map(|a| a as i16).collect();
+    for scenario in range {
+        projector.generate(scenario, &mut buf)?;
+        append_scenario(&buf, layout, &ages_column, &mut cols)?;
+    }
+    let Columns {
+        paths,
+        factors,
+        factor_keys,
+        factor_values,
+        period,
+    } = cols;
+    let mut out: ChunkGroups = [None, None, None];
+    if let (Some(p), Some(enc)) = (paths, &encoders[0]) {
+        let mut arrays = p.keys.arrays(&layout.sex_labels)?;
+        arrays.push(Arc::new(Int16Array::from(p.age)));
+        arrays.push(Arc::new(Float64Array::from(p.q)));
+        if let Some(m) = p.m {
+            arrays.push(Arc::new(Float64Array::from(m)));
+        }
+        out[0] = Some(enc.encode(&arrays)?);
+    }
+    if let Some(enc) = &encoders[1] {
+        let mut arrays = factors.arrays(&layout.sex_labels)?;
+        arrays.push(dictionary(factor_keys, &layout.factor_labels)?);
+        arrays.push(Arc::new(Float64Array::from(factor_values)));
+        out[1] = Some(enc.encode(&arrays)?);
+    }
+    if let (Some((keys, e65)), Some(enc)) = (period, &encoders[2]) {
+        let mut arrays = keys.arrays(&layout.sex_labels)?;
+        arrays.push(Arc::new(Float64Array::from(e65)));
+        out[2] = Some(enc.encode(&arrays)?);
+    }
+    Ok(out)
+}
+
+fn append_scenario(
+    buf: &ScenarioPaths,
+    layout: &Layout,
+    ages_column: &[i16],
+    cols: &mut Columns,
+) -> Result<()> {
+    let (years, n_ages) = (buf.years(), buf.ages().len());
+    let scenario = buf.scenario();
+    for (i, &sex) in buf.sexes().iter().enumerate() {
+        let rates = buf.rates(i);
+        for (h, year) in years.iter().enumerate() {
+            let row = &rates[h * n_ages..(h + 1) * n_ages];
+            if let Some(p) = cols.paths.as_mut() {
+                p.keys.push(scenario, i, year, n_ages);
+                p.age.extend_from_slice(ages_column);
+                p.q.extend_from_slice(row);
+                if let Some(m) = p.m.as_mut() {
+                    m.extend(row.iter().map(|&q| (q < 1.0).then(|| -(-q).ln_1p())));
+                }
+            }
+            let k = buf.factors(i, h + 1);
+            cols.factors.push(scenario, i, year, k.len());
+            let first = layout.factor_offsets[i];
+            cols.factor_keys
+                .extend((0..k.len()).map(|j| (first + j) as i8));
+            cols.factor_values.extend_from_slice(k);
+            if let (Some((keys, e65)), Some(a)) = (cols.period.as_mut(), layout.period_index) {
+                let e = complete_expectancy(&row[a..]);
+                if !e.is_finite() {
+                    return Err(Error::Numerical(format!(
+                        "scenario {scenario}, sex {sex}, year {year}: period life expectancy at {PERIOD_AGE} is not finite"
+                    )));
+                }
+                keys.push(scenario, i, year, 1);
+                e65.push(e);
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Generates scenarios `ids` (or this shard's block of them) and writes `paths.parquet`
+/// (if asked), `factors.parquet` and `period.parquet` (when age 65 is among the rates'
+/// ages). `progress` is told how many scenarios each finished chunk held. Nothing is left
+/// in the folder if any scenario fails.
+pub fn write_projection(
+    projector: &mut Projector,
+    ids: Range<u64>,
+    options: &OutputOptions,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<Written> {
+    let ids = match options.shard {
+        Some(shard) => shard.range(ids)?,
+        None => ids,
+    };
+    projector.prepare(ids.clone())?;
+    let basis = projector.basis();
+    let central_rates = basis.models().iter().all(|m| has_central_rate(m.name()));
+    let mut factor_names = Vec::new();
+    let mut factor_offsets = Vec::new();
+    for model in basis.models() {
+        factor_offsets.push(factor_names.len());
+        factor_names.extend(model.factor_names().iter().copied());
+    }
+    let ages = projector.ages();
+    let layout = Layout {
+        sex_labels: Arc::new(StringArray::from_iter_values(
+            basis.sexes().iter().map(|s| s.code()),
+        )),
+        factor_labels: Arc::new(StringArray::from_iter_values(factor_names)),
+        factor_offsets,
+        paths: options.paths,
+        central_rates,
+        period_index: ages.index(PERIOD_AGE),
+    };
+    let mut sinks: [Option<ParquetSink>; 3] = [None, None, None];
+    let mut encoders: [Option<Arc<Encoder>>; 3] = [None, None, None];
+    let mut files = Vec::new();
+    let plan: [(bool, &str, SchemaRef, &[&str]); 3] = [
+        (
+            options.paths,
+            "paths",
+            paths_schema(central_rates),
+            &["scenario", "sex", "year", "age"],
+        ),
+        (
+            true,
+            "factors",
+            factors_schema(),
+            &["scenario", "sex", "year", "factor"],
+        ),
+        (
+            layout.period_index.is_some(),
+            "period",
+            period_schema(),
+            &["scenario", "sex", "year"],
+        ),
+    ];
+    for (slot, (wanted, stem, schema, dictionary)) in plan.into_iter().enumerate() {
+        if wanted {
+            let path = options.file(stem);
+            let (sink, encoder) =
+                ParquetSink::create(&path, schema, properties(options.compression, dictionary))?;
+            sinks[slot] = Some(sink);
+            encoders[slot] = Some(encoder);
+            files.push(path);
+        }
+    }
+
+    let per_scenario = basis.sexes().len() * projector.years().len() * ages.len();
+    let chunk = (CHUNK_ROWS / per_scenario.max(1)).max(1) as u64;
+    let chunks: Vec<Range<u64>> = (ids.start..ids.end)
+        .step_by(chunk as usize)
+        .map(|s| s..(s + chunk).min(ids.end))
+        .collect();
+    // Two chunks per thread in flight: enough to keep every core busy while the previous
+    // batch is appended, few enough that memory stays flat.
+    let batch = 2 * rayon::current_num_threads().max(1);
+    let projector = &*projector;
+    let encode_batch = |batch: &[Range<u64>]| -> Result<Vec<ChunkGroups>> {
+        use rayon::prelude::*;
+        batch
+            .par_iter()
+            .map(|r| encode_chunk(projector, &layout, r.clone(), &encoders))
+            .collect()
+    };
+    let mut path_rows = 0u64;
+    let mut append_batch = |groups: Vec<ChunkGroups>, ranges: &[Range<u64>]| -> Result<()> {
+        for (group, range) in groups.into_iter().zip(ranges) {
+            for (sink, encoded) in sinks.iter_mut().zip(group) {
+                if let (Some(sink), Some(encoded)) = (sink.as_mut(), encoded) {
+                    sink.append(encoded)?;
+                }
+            }
+            let n = range.end - range.start;
+            if options.paths {
+                path_rows += n * per_scenario as u64;
+            }
+            progress(n);
+        }
+        Ok(())
+    };
+    let mut pending: Option<(Vec<ChunkGroups>, &[Range<u64>])> = None;
+    for ranges in chunks.chunks(batch) {
+        let previous = pending.take();
+        let (appended, encoded) = rayon::join(
+            || match previous {
+                Some((groups, r)) => append_batch(groups, r),
+                None => Ok(()),
+            },
+            || encode_batch(ranges),
+        );
+        appended?;
+        pending = Some((encoded?, ranges));
+    }
+    if let Some((groups, r)) = pending {
+        append_batch(groups, r)?;
+    }
+
+    let finished = sinks
+        .into_iter()
+        .flatten()
+        .map(ParquetSink::finish)
+        .collect::<Result<Vec<_>>>()?;
+    for file in finished {
+        file.commit()?;
+    }
+    Ok(Written {
+        scenarios: ids,
+        files,
+        path_rows,
+        central_rates,
+    })
+}
