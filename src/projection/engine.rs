@@ -24,10 +24,10 @@ use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
 use crate::projection::sink::{EncodedRowGroup, Encoder, ParquetSink, properties};
 
-/// Rows of `paths.parquet` per row group (about); a chunk holds whole scenarios. Half a
-/// million rows keeps each worker's buffers near 10 MB and row groups large enough to
-/// read efficiently.
-const CHUNK_ROWS: usize = 1 << 19;
+/// Default rows of `paths.parquet` per row group (about); a chunk holds whole scenarios.
+/// Half a million rows keeps each worker's buffers near 10 MB and row groups large enough
+/// to read efficiently.
+pub const ROW_GROUP_ROWS: usize = 1 << 19;
 
 /// Shard K of N (1-based): a contiguous block of the run's scenarios.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -92,6 +92,8 @@ pub struct OutputOptions {
     pub compression: Compression,
     /// Write only this shard, to `part-K-of-N` files.
     pub shard: Option<Shard>,
+    /// Target rows of `paths.parquet` per row group (whole scenarios, at least one).
+    pub row_group_rows: usize,
 }
 
 impl OutputOptions {
@@ -406,7 +408,7 @@ pub fn write_projection(
     }
 
     let per_scenario = basis.sexes().len() * projector.years().len() * ages.len();
-    let chunk = (CHUNK_ROWS / per_scenario.max(1)).max(1) as u64;
+    let chunk = (options.row_group_rows / per_scenario.max(1)).max(1) as u64;
     let chunks: Vec<Range<u64>> = (ids.start..ids.end)
         .step_by(chunk as usize)
         .map(|s| s..(s + chunk).min(ids.end))

@@ -252,6 +252,21 @@ impl Projector {
         Ok(())
     }
 
+    /// The basis scenario `scenario` is drawn from: the central fit, or under the bootstrap
+    /// replicate `scenario mod B` (scenario 0 always uses the central fit).
+    pub fn basis_of(&self, scenario: u64) -> Result<&JointBasis> {
+        if scenario == 0 || self.replicates.is_empty() {
+            return Ok(&self.central);
+        }
+        let r = scenario % self.replicates.len() as u64;
+        self.replicates[r as usize].as_deref().ok_or_else(|| {
+            Error::model(
+                "bootstrap",
+                format!("replicate {r} for scenario {scenario} was not prepared"),
+            )
+        })
+    }
+
     /// Fills `out` with scenario `scenario`; rates outside (0, 1] or non-finite are an error
     /// naming the scenario, sex, year and age.
     pub fn generate(&self, scenario: u64, out: &mut ScenarioPaths) -> Result<()> {
@@ -263,18 +278,7 @@ impl Projector {
                 format!("without noise only scenario 0 exists, asked for scenario {scenario}"),
             ));
         }
-        let basis: &JointBasis = match s.uncertainty {
-            Uncertainty::Bootstrap { .. } if !central_path => {
-                let r = scenario % self.replicates.len() as u64;
-                self.replicates[r as usize].as_deref().ok_or_else(|| {
-                    Error::model(
-                        "bootstrap",
-                        format!("replicate {r} for scenario {scenario} was not prepared"),
-                    )
-                })?
-            }
-            _ => &self.central,
-        };
+        let basis = self.basis_of(scenario)?;
         out.scenario = scenario;
         let dims = basis.dims();
         if dims != out.dims {

@@ -148,7 +148,8 @@ pub fn histories(
     let mut m = DMatrix::zeros(dims, years);
     for i in 0..dims {
         f[(i, 0)] = start[i];
-        m[(i, 0)] = start[i] + 0.3;
+        // Male mortality starts higher in level, with the same age slope.
+        m[(i, 0)] = start[i] + if i == 0 { 0.3 } else { 0.0 };
     }
     for t in 1..years {
         for i in 0..dims {
