@@ -190,6 +190,9 @@ pub struct ProjectionConfig {
     /// Parameter uncertainty.
     #[serde(default = "default_uncertainty")]
     pub parameter_uncertainty: UncertaintySetting,
+    /// Bootstrap replicates (refits) shared by the scenarios; scenario s uses replicate s mod B.
+    #[serde(default = "default_bootstrap_samples")]
+    pub bootstrap_samples: usize,
 }
 
 /// Payment timing within each period.
@@ -325,6 +328,9 @@ fn default_true() -> bool {
 fn default_uncertainty() -> UncertaintySetting {
     UncertaintySetting::Switch(false)
 }
+fn default_bootstrap_samples() -> usize {
+    200
+}
 fn default_timing() -> Timing {
     Timing::Advance
 }
@@ -370,6 +376,7 @@ impl Default for ProjectionConfig {
             horizon: default_horizon(),
             noise: true,
             parameter_uncertainty: default_uncertainty(),
+            bootstrap_samples: default_bootstrap_samples(),
         }
     }
 }
@@ -588,6 +595,9 @@ impl Config {
         let p = &self.projection;
         if p.scenarios == 0 {
             return Err(self.err("projection.scenarios", "must be at least 1"));
+        }
+        if p.bootstrap_samples == 0 {
+            return Err(self.err("projection.bootstrap_samples", "must be at least 1"));
         }
         if p.horizon == 0 || p.horizon > 200 {
             return Err(self.err(

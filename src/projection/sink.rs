@@ -12,7 +12,7 @@ use arrow_array::ArrayRef;
 use arrow_schema::SchemaRef;
 use parquet::arrow::ArrowWriter;
 use parquet::arrow::arrow_writer::{ArrowColumnChunk, ArrowRowGroupWriterFactory, compute_leaves};
-use parquet::basic::{Compression as Codec, ZstdLevel};
+use parquet::basic::{Compression as Codec, Encoding, ZstdLevel};
 use parquet::file::properties::{EnabledStatistics, WriterProperties};
 use parquet::file::writer::SerializedFileWriter;
 use parquet::schema::types::ColumnPath;
@@ -49,10 +49,12 @@ fn parquet_err(path: &Path, e: impl std::fmt::Display) -> Error {
     }
 }
 
-/// Writer properties: the configured codec, dictionary encoding only on the columns named
-/// (keys and labels, which repeat), none on measured values, where a dictionary of
-/// distinct floats costs time and saves nothing.
-pub fn properties(compression: Compression, dictionary_columns: &[&str]) -> WriterProperties {
+/// Writer properties: the configured codec, no dictionaries, and each named column's
+/// encoding; statistics per column chunk only.
+pub fn properties(
+    compression: Compression,
+    encodings: Vec<(String, Encoding)>,
+) -> WriterProperties {
     let codec = match compression {
         Compression::Zstd => Codec::ZSTD(ZstdLevel::default()),
         Compression::Snappy => Codec::SNAPPY,
@@ -63,8 +65,8 @@ pub fn properties(compression: Compression, dictionary_columns: &[&str]) -> Writ
         .set_dictionary_enabled(false)
         .set_statistics_enabled(EnabledStatistics::Chunk)
         .set_created_by(format!("tailspan {}", crate::VERSION));
-    for name in dictionary_columns {
-        builder = builder.set_column_dictionary_enabled(ColumnPath::from(*name), true);
+    for (name, encoding) in encodings {
+        builder = builder.set_column_encoding(ColumnPath::from(name), encoding);
     }
     builder.build()
 }
