@@ -1,1 +1,9 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
+
+pub mod cohort;
+pub mod portfolio;
+pub mod schedule;
+
+pub use cohort::{Cohort, LevelAdjustment, RateSurface};
+pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
+pub use schedule::{Basis, PaymentShape, Schedule};
