@@ -329,13 +329,13 @@ fn guide_table(survival: &[f64]) -> [u16; GUIDE_BUCKETS] {
     let mut guide = [0u16; GUIDE_BUCKETS];
     let last = survival.len() - 1;
     let mut k = last;
-    for b in 0..GUIDE_BUCKETS {
+    for (b, slot) in guide.iter_mut().enumerate() {
         let threshold = (b + 1) as f64 / GUIDE_BUCKETS as f64;
         // K is non-increasing in the threshold: walk down from the previous answer.
         while k > 0 && survival[k] < threshold {
             k -= 1;
         }
-        guide[b] = k as u16;
+        *slot = k as u16;
     }
     guide
 }
