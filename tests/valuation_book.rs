@@ -231,13 +231,8 @@ fn simulated_mean_converges_to_expected() {
         out.pv_expected
     );
     // Expected cash flows in the first years match the simulated means closely.
-    for k in 0..5 {
-        let e = out.cash_expected[k];
-        assert!(
-            (cash_mean[k] - e).abs() < 0.02 * e,
-            "year {k}: {} vs {e}",
-            cash_mean[k]
-        );
+    for (k, (mean, &e)) in cash_mean.iter().zip(&out.cash_expected).take(5).enumerate() {
+        assert!((mean - e).abs() < 0.02 * e, "year {k}: {mean} vs {e}");
     }
 }
 
