@@ -275,3 +275,30 @@ fn deaths_in_year_one_have_binomial_variance() {
     );
     assert!((mean - n_lives * (1.0 - q80)).abs() < 4.0 * (binomial / reps as f64).sqrt());
 }
+
+#[test]
+fn standard_stress_raises_every_annuity() {
+    // A 20 % decrease in every q (Delegated Regulation (EU) 2015/35, Art. 138) lengthens
+    // every life, so every annuity is worth more.
+    let q = surface(sult(), 0.01);
+    for p in mixed_book().policies {
+        let book = Book {
+            source: "".into(),
+            policies: vec![p.clone()],
+        };
+        let prepared = prepared(&book, Timing::Advance, 12, 0.03);
+        let base = expected_value(&prepared, &q).pv_expected;
+        let mut ws = Workspace::default();
+        prepared
+            .build_scaled_curves(&[Some(view(&q)), Some(view(&q))], 0.8, &mut ws)
+            .unwrap();
+        let mut out = ScenarioValue::default();
+        prepared.value::<ChaCha8Rng>(&mut ws, None, &mut out);
+        assert!(
+            out.pv_expected > base,
+            "{}: {} <= {base}",
+            p.id,
+            out.pv_expected
+        );
+    }
+}

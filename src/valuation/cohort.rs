@@ -105,13 +105,14 @@ pub fn sex_index(sex: Sex) -> usize {
 }
 
 /// Fills `q` and `survival` with the cohort diagonal from the valuation year: `q[k] =
-/// min(1, level × factor × q(age + k, year + k))` for k up to `max_age − age` (q is 1 at
+/// min(1, scale × level × factor × q(age + k, year + k))` for k up to `max_age − age` (q is 1 at
 /// `max_age`), and `survival[k] = k p x` for k up to `q.len()`. Returns the number of years.
 pub fn cohort_curve(
     cohort: &Cohort,
     surface: &RateSurface<'_>,
     year: i32,
     level: &LevelAdjustment,
+    scale: f64,
     q: &mut Vec<f64>,
     survival: &mut Vec<f64>,
 ) -> usize {
@@ -127,7 +128,7 @@ pub fn cohort_curve(
             1.0
         } else {
             let base = surface.q(age, year + k as i32);
-            (base * cohort.factor * level.factor(cohort.sex, age)).min(1.0)
+            (base * scale * cohort.factor * level.factor(cohort.sex, age)).min(1.0)
         };
         q.push(rate);
         alive *= 1.0 - rate;

@@ -211,6 +211,17 @@ impl PreparedBook {
         surfaces: &[Option<RateSurface<'_>>; 2],
         ws: &mut Workspace,
     ) -> Result<()> {
+        self.build_scaled_curves(surfaces, 1.0, ws)
+    }
+
+    /// As [`Self::build_curves`] with every q multiplied by `scale` (capped at 1): 0.8 is
+    /// the standard-formula 20 % decrease.
+    pub fn build_scaled_curves(
+        &self,
+        surfaces: &[Option<RateSurface<'_>>; 2],
+        scale: f64,
+        ws: &mut Workspace,
+    ) -> Result<()> {
         ws.q.resize_with(self.cohorts.len(), Vec::new);
         ws.survival.resize_with(self.cohorts.len(), Vec::new);
         for (c, cohort) in self.cohorts.iter().enumerate() {
@@ -228,6 +239,7 @@ impl PreparedBook {
                 surface,
                 self.year,
                 &self.level,
+                scale,
                 &mut ws.q[c],
                 &mut ws.survival[c],
             );
