@@ -3,8 +3,11 @@
 use tailspan::risk::{quantile_sorted, tvar_sorted};
 
 fn read(path: &str) -> String {
-    std::fs::read_to_string(format!("{}/tests/fixtures/{path}", env!("CARGO_MANIFEST_DIR")))
-        .unwrap()
+    std::fs::read_to_string(format!(
+        "{}/tests/fixtures/{path}",
+        env!("CARGO_MANIFEST_DIR")
+    ))
+    .unwrap()
 }
 
 #[test]
@@ -21,9 +24,15 @@ fn quantiles_and_tvar_match_numpy() {
         let f: Vec<f64> = line.split(',').map(|x| x.parse().unwrap()).collect();
         let (p, q, tvar) = (f[0], f[1], f[2]);
         let ours = quantile_sorted(&sample, p);
-        assert!((ours - q).abs() <= 1e-9 * q.abs(), "p={p}: {ours} vs numpy {q}");
+        assert!(
+            (ours - q).abs() <= 1e-9 * q.abs(),
+            "p={p}: {ours} vs numpy {q}"
+        );
         let ours = tvar_sorted(&sample, p);
-        assert!((ours - tvar).abs() <= 1e-9 * tvar.abs(), "p={p}: tvar {ours} vs {tvar}");
+        assert!(
+            (ours - tvar).abs() <= 1e-9 * tvar.abs(),
+            "p={p}: tvar {ours} vs {tvar}"
+        );
         checked += 1;
     }
     assert_eq!(checked, 13);

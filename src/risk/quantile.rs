@@ -59,7 +59,11 @@ pub fn summarize(values: &[f64]) -> SampleSummary {
     SampleSummary {
         count: n,
         mean,
-        std_dev: if n > 1 { (ss / (n - 1) as f64).sqrt() } else { 0.0 },
+        std_dev: if n > 1 {
+            (ss / (n - 1) as f64).sqrt()
+        } else {
+            0.0
+        },
         min: values.iter().copied().fold(f64::INFINITY, f64::min),
         max: values.iter().copied().fold(f64::NEG_INFINITY, f64::max),
     }
