@@ -1,9 +1,10 @@
 //! `tailspan table`: a deterministic life table from a mortality law, as CSV on stdout.
 //!
 //! Every argument is checked and every row computed before the first byte is written, so
-//! a bad argument leaves no partial table behind. Numbers are printed in Rust's shortest
-//! round-trip form: full precision, so the output can be checked against other tools.
+//! a bad argument leaves no partial table behind. Numbers are printed in full (shortest
+//! round-trip) precision so the output can be checked against other tools.
 
+use std::fmt;
 use std::io::{self, BufWriter, Write};
 
 use crate::error::{Error, Result};
@@ -227,7 +228,12 @@ fn compute(spec: &TableSpec) -> Result<Vec<Row>> {
             Row {
                 age,
                 qx: rates[0],
-                px: 1.0 - rates[0],
+                // From the law, not 1 − q, which keeps few digits where q is close to 1.
+                px: if age == spec.max_age {
+                    0.0
+                } else {
+                    spec.law.survival(f64::from(age), 1.0)
+                },
                 lx: spec.radix * survival[k] / radix_survival,
                 e_complete: complete_expectation(rates, spec.fractional),
                 e_curtate: curtate_expectation(rates),
@@ -268,22 +274,52 @@ fn write_rows(out: &mut impl Write, rows: &[Row]) -> io::Result<()> {
             out,
             "{},{},{},{},{},{},{},{},{}",
             r.age,
-            r.qx,
-            r.px,
-            r.lx,
-            r.e_complete,
-            r.e_curtate,
-            r.e_complete_n,
-            r.e_curtate_n,
-            r.annuity_due
+            Number(r.qx),
+            Number(r.px),
+            Number(r.lx),
+            Number(r.e_complete),
+            Number(r.e_curtate),
+            Number(r.e_complete_n),
+            Number(r.e_curtate_n),
+            Number(r.annuity_due)
         )?;
     }
     Ok(())
 }
 
+/// A value printed in full (shortest round-trip) precision, in scientific notation when
+/// tiny so that the survivors at extreme ages do not print as fifty zeros.
+struct Number(f64);
+
+impl fmt::Display for Number {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.0 == 0.0 || self.0.abs() >= 1e-4 {
+            write!(f, "{}", self.0)
+        } else {
+            write!(f, "{:e}", self.0)
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn numbers_round_trip() {
+        for v in [
+            0.0,
+            1.0,
+            13.549790037743087,
+            1e-4,
+            9.646151100106692e-9,
+            8e-300,
+        ] {
+            let text = Number(v).to_string();
+            assert_eq!(text.parse::<f64>().unwrap(), v, "{text}");
+            assert!(text.len() < 30, "{text}");
+        }
+    }
 
     #[test]
     fn ages_parse_as_an_inclusive_range() {
