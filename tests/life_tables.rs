@@ -3,7 +3,7 @@
 
 use tailspan::data::DiscountCurve;
 use tailspan::life::{
-    Annuity, FlatRate, Fractional, MortalityLaw, annuity_due, annuity_immediate,
+    Annuity, Discount, FlatRate, Fractional, MortalityLaw, annuity_due, annuity_immediate,
     complete_expectation, complete_expectation_n, curtate_expectation, curtate_expectation_n,
     lives, survival_at, survival_curve,
 };
@@ -484,4 +484,8 @@ fn spot_curve_and_closure_discount_alike() {
     close_rel(annuity_due(&q, &curve), by_hand, 1e-12, "spot curve");
     let closure = |t: f64| curve.discount(t);
     close_rel(annuity_due(&q, &closure), by_hand, 1e-12, "closure");
+    let dynamic: &dyn Fn(f64) -> f64 = &closure;
+    close_rel(annuity_due(&q, dynamic), by_hand, 1e-12, "dyn closure");
+    let as_trait: &dyn Discount = &curve;
+    close_rel(annuity_due(&q, as_trait), by_hand, 1e-12, "dyn Discount");
 }

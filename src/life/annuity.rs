@@ -31,6 +31,8 @@
 
 use super::fractional::Fractional;
 use crate::data::DiscountCurve;
+/// Advance (times d, d + 1/m, …) or arrears (d + 1/m, d + 2/m, …): the config's setting.
+pub use crate::data::config::Timing;
 
 /// A discount function v(t): the value now of 1 paid at time t years.
 pub trait Discount {
@@ -38,7 +40,7 @@ pub trait Discount {
     fn discount(&self, t: f64) -> f64;
 }
 
-impl<F: Fn(f64) -> f64> Discount for F {
+impl<F: Fn(f64) -> f64 + ?Sized> Discount for F {
     fn discount(&self, t: f64) -> f64 {
         self(t)
     }
@@ -71,16 +73,6 @@ impl Discount for FlatRate {
     fn discount(&self, t: f64) -> f64 {
         (-self.force * t).exp()
     }
-}
-
-/// Whether payments fall at the start or the end of each payment period.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
-pub enum Timing {
-    /// At the start: times d, d + 1/m, … (an annuity-due).
-    #[default]
-    Advance,
-    /// At the end: times d + 1/m, d + 2/m, … (an annuity-immediate).
-    Arrears,
 }
 
 /// The shape of a life annuity paying 1 a year; see the module docs for the conventions.

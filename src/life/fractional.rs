@@ -7,8 +7,11 @@
 use std::fmt;
 use std::str::FromStr;
 
+use serde::{Deserialize, Serialize};
+
 /// How deaths are spread within each year of age.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Deserialize, Serialize)]
+#[serde(rename_all = "kebab-case")]
 pub enum Fractional {
     /// Uniform distribution of deaths: `s p x = 1 − s q x` for 0 ≤ s ≤ 1.
     #[default]
