@@ -46,7 +46,7 @@ pub struct TableArgs {
     /// Survival between integer ages: udd or constant-force.
     #[arg(long, value_name = "METHOD", default_value = "udd")]
     pub fractional: String,
-    /// Payments a year in the annuity column (UDD or constant force within the year).
+    /// Payments a year in the annuity column, each of 1/m, survival within the year per --fractional.
     #[arg(long, value_name = "M", default_value_t = 1)]
     pub frequency: u32,
 }
