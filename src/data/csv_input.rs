@@ -259,15 +259,16 @@ fn header_columns(
     };
     let expected = required.join(",");
     let names: Vec<String> = header.iter().map(str::to_lowercase).collect();
-    // A first line with none of the required names (typically a data row) is not a header.
-    if !names.iter().any(|n| required.contains(&n.as_str())) {
+    let allowed: Vec<&str> = required.iter().chain(optional).copied().collect();
+    // A first line that starts with a number or names no known column is a data row.
+    let numeric_first = names.first().is_some_and(|n| n.parse::<f64>().is_ok());
+    if numeric_first || !names.iter().any(|n| allowed.contains(&n.as_str())) {
         let shown: Vec<&str> = header.iter().take(6).collect();
         return Err(row_error(format!(
             "missing header: the first line must name the columns, e.g. `{expected}`, found `{}`",
             shown.join(",")
         )));
     }
-    let allowed: Vec<&str> = required.iter().chain(optional).copied().collect();
     let mut columns = HashMap::new();
     for (i, name) in names.iter().map(String::as_str).enumerate() {
         if name.is_empty() {
