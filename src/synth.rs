@@ -70,9 +70,13 @@ enum Stream {
     Book = 4,
 }
 
+/// Stream numbers carry a tag in their high bits so they can never coincide with the
+/// per-scenario streams of a projection run with the same seed.
+const STREAM_TAG: u64 = 0x7379_6e74_6800_0000;
+
 fn rng(seed: u64, stream: Stream) -> ChaCha8Rng {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    rng.set_stream(stream as u64);
+    rng.set_stream(STREAM_TAG | stream as u64);
     rng
 }
 

@@ -28,63 +28,19 @@ pub fn run(args: &CheckArgs) -> Result<()> {
 /// Writes nothing.
 pub fn summary(path: &Path) -> Result<String> {
     let config = Config::load(path)?;
-    let experience = Experience::load(
-        &config.resolve(&config.data.experience),
-        config.ages(),
-        config.years(),
-        &config.data.sexes,
-    )?;
-    let book = match &config.data.book {
-        Some(book) => Some(Book::load(&config.resolve(book))?),
-        None => None,
-    };
+    let experience = Experience::from_config(&config)?;
+    let book = Book::from_config(&config)?;
     let curve =
         if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
             Some(DiscountCurve::from_config(&config)?)
         } else {
             None
         };
-    if let Some(book) = &book {
-        check_book_window(&config, book)?;
-    }
 
     let mut s = String::new();
     // Writing to a String cannot fail.
     let _ = write_summary(&mut s, &config, &experience, book.as_ref(), curve.as_ref());
     Ok(s)
-}
-
-/// Every policy must be of a configured sex and no younger than the first fitted age, or
-/// the valuation would have no projected rates for it.
-fn check_book_window(config: &Config, book: &Book) -> Result<()> {
-    let first_age = config.ages().first;
-    for p in &book.policies {
-        if !config.data.sexes.contains(&p.sex) {
-            return Err(Error::config(
-                &config.file,
-                "data.sexes",
-                format!(
-                    "policy `{}` in {} is of sex {}, which is not fitted",
-                    p.id,
-                    book.source.display(),
-                    p.sex
-                ),
-            ));
-        }
-        if p.age < first_age {
-            return Err(Error::config(
-                &config.file,
-                "data.ages",
-                format!(
-                    "policy `{}` in {} is aged {}, below the first fitted age {first_age}; rates are not projected below it",
-                    p.id,
-                    book.source.display(),
-                    p.age
-                ),
-            ));
-        }
-    }
-    Ok(())
 }
 
 fn write_summary(

@@ -11,9 +11,9 @@
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
-use crate::data::Sex;
 use crate::data::csv_input::{self, MAX_AGE, Row, Table};
-use crate::error::Result;
+use crate::data::{Config, Sex};
+use crate::error::{Error, Result};
 
 /// Columns every book must have.
 pub const BOOK_REQUIRED: [&str; 4] = ["id", "sex", "age", "amount"];
@@ -115,6 +115,50 @@ impl Book {
             source: path.to_path_buf(),
             policies,
         })
+    }
+
+    /// The book a config names (`None` if it names none), checked against the fitted
+    /// window with [`Book::check_window`].
+    pub fn from_config(config: &Config) -> Result<Option<Book>> {
+        let Some(path) = &config.data.book else {
+            return Ok(None);
+        };
+        let book = Book::load(&config.resolve(path))?;
+        book.check_window(config)?;
+        Ok(Some(book))
+    }
+
+    /// Checks every policy is of a fitted sex and no younger than the first fitted age:
+    /// projected rates start there, so a younger life could not be valued.
+    pub fn check_window(&self, config: &Config) -> Result<()> {
+        let first_age = config.ages().first;
+        for p in &self.policies {
+            if !config.data.sexes.contains(&p.sex) {
+                return Err(Error::config(
+                    &config.file,
+                    "data.sexes",
+                    format!(
+                        "policy `{}` in {} is of sex {}, which is not fitted",
+                        p.id,
+                        self.source.display(),
+                        p.sex
+                    ),
+                ));
+            }
+            if p.age < first_age {
+                return Err(Error::config(
+                    &config.file,
+                    "data.ages",
+                    format!(
+                        "policy `{}` in {} is aged {}, below the first fitted age {first_age}; rates are not projected below it",
+                        p.id,
+                        self.source.display(),
+                        p.age
+                    ),
+                ));
+            }
+        }
+        Ok(())
     }
 
     /// Writes the book as CSV with every column (an empty `term` is whole life) to `path`

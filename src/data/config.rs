@@ -654,10 +654,13 @@ impl Config {
             if !(f.factor.is_finite() && f.factor > 0.0 && f.factor <= 10.0) {
                 return Err(self.err(&format!("{key}.factor"), "must be in (0, 10]"));
             }
-            if f.ages[1] < f.ages[0] {
+            if f.ages[1] < f.ages[0] || f.ages[0] < 0 || f.ages[1] > 130 {
                 return Err(self.err(
                     &format!("{key}.ages"),
-                    "must be [first, last], first <= last",
+                    format!(
+                        "must be [first, last] with 0 <= first <= last <= 130, found {:?}",
+                        f.ages
+                    ),
                 ));
             }
         }

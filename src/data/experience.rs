@@ -244,6 +244,16 @@ impl Experience {
         })
     }
 
+    /// The experience a config names, for its fitted ages, years and sexes.
+    pub fn from_config(config: &crate::data::Config) -> Result<Experience> {
+        Experience::load(
+            &config.resolve(&config.data.experience),
+            config.ages(),
+            config.years(),
+            &config.data.sexes,
+        )
+    }
+
     /// Writes the experience as CSV (`year,age,sex,deaths,exposure`, by sex, year, age) to
     /// `path` atomically. Numbers are written in their shortest exact form, so
     /// [`Experience::load`] gives back the same values.
