@@ -160,6 +160,10 @@ const EXPERIENCE: &[Case] = &[
         "no_header.csv",
         &["row 1", "missing header", "year,age,sex,deaths,exposure"],
     ),
+    (
+        "semicolons.csv",
+        &["row 1", "separated by ';'", "separated by commas"],
+    ),
     ("long_line.csv", &["row 3", "limited to 4096 bytes"]),
     ("unknown_column.csv", &["row 1", "unknown column `cause`"]),
     (
@@ -242,6 +246,7 @@ const BOOK: &[Case] = &[
         &["row 1", "missing column `amount`"],
     ),
     ("empty_id.csv", &["row 4", "column `id`", "is empty"]),
+    ("tab_separated.csv", &["row 1", "separated by '\\t'"]),
 ];
 
 const CURVE: &[Case] = &[

@@ -184,3 +184,14 @@ fn discount_basis_comes_from_the_config() {
         other => panic!("unexpected {other}"),
     }
 }
+
+#[test]
+fn windows_line_endings_and_quoted_ids_load() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = "id,sex,age,amount\r\n\"X, 1\",F,70,100\r\nX2,M,71,200\r\n";
+    let path = write(dir.path(), "b.csv", text);
+    let book = Book::load(&path).unwrap();
+    assert_eq!(book.policies.len(), 2);
+    assert_eq!(book.policies[0].id, "X, 1");
+    assert_eq!(book.policies[1].amount, 200.0);
+}

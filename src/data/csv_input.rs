@@ -263,11 +263,20 @@ fn header_columns(
     // A first line that starts with a number or names no known column is a data row.
     let numeric_first = names.first().is_some_and(|n| n.parse::<f64>().is_ok());
     if numeric_first || !names.iter().any(|n| allowed.contains(&n.as_str())) {
-        let shown: Vec<&str> = header.iter().take(6).collect();
-        return Err(row_error(format!(
-            "missing header: the first line must name the columns, e.g. `{expected}`, found `{}`",
-            shown.join(",")
-        )));
+        let shown = header.iter().take(6).collect::<Vec<_>>().join(",");
+        let separator = [';', '\t', '|']
+            .into_iter()
+            .find(|&c| header.len() == 1 && shown.contains(c));
+        let rule = match separator {
+            Some(c) => format!(
+                "the header `{}` seems to be separated by {c:?}; columns must be separated by commas, e.g. `{expected}`",
+                shown.escape_debug()
+            ),
+            None => format!(
+                "missing header: the first line must name the columns, e.g. `{expected}`, found `{shown}`"
+            ),
+        };
+        return Err(row_error(rule));
     }
     let mut columns = HashMap::new();
     for (i, name) in names.iter().map(String::as_str).enumerate() {
