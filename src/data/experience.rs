@@ -9,7 +9,8 @@
 //! column is rejected rather than ignored: a file carrying, say, adjusted deaths beside raw
 //! ones should be cut down on purpose, not have one of them picked silently. Rows outside
 //! the fitted window are checked like every other row but not kept, so one file can serve
-//! several windows.
+//! several windows. Deaths need not be whole numbers: some sources spread deaths of
+//! unknown age or date over cells, and the Poisson and binomial likelihoods accept that.
 
 use std::collections::HashMap;
 use std::ops::RangeInclusive;
