@@ -436,12 +436,15 @@ impl Config {
     /// Reads, parses and checks the config at `path`.
     pub fn load(path: &Path) -> Result<Config> {
         let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-        let text = String::from_utf8(bytes).map_err(|e| Error::File {
-            file: path.to_path_buf(),
-            rule: format!(
-                "not valid UTF-8 (byte {} is not part of a UTF-8 character)",
-                e.utf8_error().valid_up_to()
-            ),
+        let text = String::from_utf8(bytes).map_err(|e| {
+            let good = &e.as_bytes()[..e.utf8_error().valid_up_to()];
+            let line = good.iter().filter(|&&b| b == b'\n').count() + 1;
+            Error::File {
+                file: path.to_path_buf(),
+                rule: format!(
+                    "not valid UTF-8: line {line} has a byte that is not part of a UTF-8 character; save the file as UTF-8"
+                ),
+            }
         })?;
         Config::parse(&text, path)
     }
@@ -575,7 +578,10 @@ impl Config {
         if m.closure_fit_ages < 2 || m.closure_fit_ages > n_ages {
             return Err(self.err(
                 "model.closure_fit_ages",
-                format!("must be between 2 and the number of fitted ages ({n_ages})"),
+                format!(
+                    "must be between 2 and the number of fitted ages ({n_ages}), found {} (the default is 10; set it for a window of fewer ages)",
+                    m.closure_fit_ages
+                ),
             ));
         }
         if !(m.tolerance.is_finite() && m.tolerance > 0.0) {
@@ -648,10 +654,13 @@ impl Config {
             if !(f.factor.is_finite() && f.factor > 0.0 && f.factor <= 10.0) {
                 return Err(self.err(&format!("{key}.factor"), "must be in (0, 10]"));
             }
-            if f.ages[1] < f.ages[0] {
+            if f.ages[1] < f.ages[0] || f.ages[0] < 0 || f.ages[1] > 130 {
                 return Err(self.err(
                     &format!("{key}.ages"),
-                    "must be [first, last], first <= last",
+                    format!(
+                        "must be [first, last] with 0 <= first <= last <= 130, found {:?}",
+                        f.ages
+                    ),
                 ));
             }
         }
