@@ -124,7 +124,8 @@ pub struct ModelConfig {
     /// Old-age closure law.
     #[serde(default = "default_closure")]
     pub closure: ClosureKind,
-    /// Number of top fitted ages the closure law is fitted to.
+    /// Number of top fitted ages the closure law is fitted to (default 10, or all fitted
+    /// ages when fewer).
     #[serde(default = "default_closure_fit_ages")]
     pub closure_fit_ages: usize,
     /// Highest age; q is 1 there.
@@ -298,8 +299,12 @@ fn default_kind() -> KindList {
 fn default_closure() -> ClosureKind {
     ClosureKind::Kannisto
 }
+/// Marks `closure_fit_ages` as unset; [`Config::parse`] replaces it by the default.
+const CLOSURE_FIT_AGES_UNSET: usize = usize::MAX;
+/// Default number of top ages the closure is fitted to (fewer if fewer ages are fitted).
+const DEFAULT_CLOSURE_FIT_AGES: usize = 10;
 fn default_closure_fit_ages() -> usize {
-    10
+    CLOSURE_FIT_AGES_UNSET
 }
 fn default_max_age() -> i32 {
     120
@@ -354,7 +359,7 @@ impl Default for ModelConfig {
             fit: None,
             refit_kt: false,
             closure: default_closure(),
-            closure_fit_ages: default_closure_fit_ages(),
+            closure_fit_ages: CLOSURE_FIT_AGES_UNSET,
             max_age: default_max_age(),
             tolerance: default_tolerance(),
             max_iterations: default_max_iterations(),
@@ -467,6 +472,10 @@ impl Config {
             Error::config(path, key, message)
         })?;
         config.file = path.to_path_buf();
+        if config.model.closure_fit_ages == CLOSURE_FIT_AGES_UNSET {
+            let n_ages = (config.data.ages[1] - config.data.ages[0] + 1).max(2) as usize;
+            config.model.closure_fit_ages = DEFAULT_CLOSURE_FIT_AGES.min(n_ages);
+        }
         config.base = path
             .parent()
             .map(Path::to_path_buf)
@@ -579,7 +588,7 @@ impl Config {
             return Err(self.err(
                 "model.closure_fit_ages",
                 format!(
-                    "must be between 2 and the number of fitted ages ({n_ages}), found {} (the default is 10; set it for a window of fewer ages)",
+                    "must be between 2 and the number of fitted ages ({n_ages}), found {}",
                     m.closure_fit_ages
                 ),
             ));
@@ -707,6 +716,15 @@ years = [1975, 2024]
         assert_eq!(c.model.kinds(), vec![ModelKind::LeeCarter]);
         assert_eq!(c.valuation_year(), 2025);
         assert_eq!(c.resolve(Path::new("e.csv")), PathBuf::from("dir/e.csv"));
+    }
+
+    #[test]
+    fn closure_default_fits_a_short_window() {
+        let text = MINIMAL.replace("[55, 100]", "[55, 60]");
+        let c = Config::parse(&text, Path::new("c.toml")).unwrap();
+        assert_eq!(c.model.closure_fit_ages, 6);
+        let c = Config::parse(MINIMAL, Path::new("c.toml")).unwrap();
+        assert_eq!(c.model.closure_fit_ages, 10);
     }
 
     #[test]
