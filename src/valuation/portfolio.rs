@@ -8,15 +8,20 @@
 
 use std::collections::HashMap;
 
-use rand::{Rng, RngExt};
+use rand::Rng;
 
 use crate::data::{Book, Sex};
 use crate::error::{Error, Result};
 use crate::valuation::cohort::{Cohort, LevelAdjustment, RateSurface, cohort_curve, sex_index};
 use crate::valuation::schedule::{Basis, PaymentShape, Schedule};
 
-/// Buckets of the guide table that starts each death-time search near its answer.
-const GUIDE_BUCKETS: usize = 32;
+/// log2 of the buckets of the guide table that starts each death-time search near its
+/// answer.
+const GUIDE_BITS: u32 = 5;
+/// Buckets of the guide table.
+const GUIDE_BUCKETS: usize = 1 << GUIDE_BITS;
+/// 2^−32: turns 32 random bits into a uniform on (0, 1).
+const UNIT_32: f64 = 1.0 / 4_294_967_296.0;
 
 /// Policies with the same cohort and shape, amounts summed (amount × weight).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -34,6 +39,16 @@ struct Life {
     amount: f64,
 }
 
+/// Consecutive simulated lives sharing a cohort and a shape: the simulation looks up the
+/// curve and the schedule once per run, not once per life.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct Run {
+    cohort: u32,
+    shape: u32,
+    start: u32,
+    end: u32,
+}
+
 /// A book ready to be valued in any scenario.
 #[derive(Debug, Clone)]
 pub struct PreparedBook {
@@ -42,7 +57,9 @@ pub struct PreparedBook {
     cohorts: Vec<Cohort>,
     schedules: Vec<Schedule>,
     blocks: Vec<Block>,
-    lives: Vec<Life>,
+    /// Amount of each simulated life, grouped into `runs`.
+    amounts: Vec<f64>,
+    runs: Vec<Run>,
     level: LevelAdjustment,
     /// Total amount of lives per shape, for the simulated cash flows.
     shape_amount: Vec<f64>,
@@ -174,15 +191,27 @@ impl PreparedBook {
             .map(|s| Schedule::new(s, basis, years))
             .collect();
         let mut shape_amount = vec![0.0; schedules.len()];
-        for l in &lives {
+        let mut runs: Vec<Run> = Vec::new();
+        for (i, l) in lives.iter().enumerate() {
             shape_amount[l.shape as usize] += l.amount;
+            match runs.last_mut() {
+                Some(r) if r.cohort == l.cohort && r.shape == l.shape => r.end = i as u32 + 1,
+                _ => runs.push(Run {
+                    cohort: l.cohort,
+                    shape: l.shape,
+                    start: i as u32,
+                    end: i as u32 + 1,
+                }),
+            }
         }
+        let amounts = lives.iter().map(|l| l.amount).collect();
         Ok(PreparedBook {
             year,
             cohorts,
             schedules,
             blocks,
-            lives,
+            amounts,
+            runs,
             level,
             shape_amount,
             years,
@@ -201,7 +230,7 @@ impl PreparedBook {
 
     /// Number of simulated lives.
     pub fn lives(&self) -> usize {
-        self.lives.len()
+        self.amounts.len()
     }
 
     /// Builds every cohort's curve for one scenario into `ws`; `surfaces[i]` holds sex i's
@@ -296,25 +325,35 @@ impl PreparedBook {
         ws.partial.resize(n_shapes * (self.years + 1), 0.0);
         let stride = self.years + 1;
         let mut pv = 0.0;
-        for life in &self.lives {
-            let s = &ws.survival[life.cohort as usize];
-            let guide = &ws.guide[life.cohort as usize];
-            // U in (0, 1]; death year K = max{k : S_k ≥ U}.
-            let u = 1.0 - rng.random::<f64>();
-            let bucket = ((u * GUIDE_BUCKETS as f64) as usize).min(GUIDE_BUCKETS - 1);
-            let mut k = guide[bucket] as usize;
-            while s[k + 1] >= u {
-                k += 1;
+        for run in &self.runs {
+            let s = &ws.survival[run.cohort as usize];
+            let guide = &ws.guide[run.cohort as usize];
+            let sched = &self.schedules[run.shape as usize];
+            let row = run.shape as usize * stride;
+            let dying = &mut ws.dying[row..row + stride];
+            let partial = &mut ws.partial[row..row + stride];
+            let mut run_pv = 0.0;
+            for &amount in &self.amounts[run.start as usize..run.end as usize] {
+                // U in (0, 1) from 32 random bits; its top bits pick the guide bucket.
+                let bits = rng.next_u32();
+                let u = (f64::from(bits) + 0.5) * UNIT_32;
+                let mut k = guide[(bits >> (32 - GUIDE_BITS)) as usize] as usize;
+                // Death year K = max{k : S_k ≥ U}; S ends at 0 < U, so the scan stops.
+                while s[k + 1] >= u {
+                    k += 1;
+                }
+                // Under UDD the time of death within year K is linear in U.
+                let f = (s[k] - u) / (s[k] - s[k + 1]);
+                let paid = sched.payments_before(k, f);
+                run_pv += amount * sched.pv_prefix[paid];
+                dying[k] += amount;
+                let year_start = sched.year_start[k] as usize;
+                partial[k] += amount * (sched.cash_prefix[paid] - sched.cash_prefix[year_start]);
             }
-            let t = k as f64 + (s[k] - u) / (s[k] - s[k + 1]);
-            let sched = &self.schedules[life.shape as usize];
-            let paid = sched.payments_before(t);
-            pv += life.amount * (sched.certain_pv + sched.pv_prefix[paid]);
-            let slot = life.shape as usize * stride + k.min(self.years);
-            ws.dying[slot] += life.amount;
-            let year_start = sched.year_start[k.min(sched.years)] as usize;
-            ws.partial[slot] +=
-                life.amount * (sched.cash_prefix[paid] - sched.cash_prefix[year_start.min(paid)]);
+            let run_amount: f64 = self.amounts[run.start as usize..run.end as usize]
+                .iter()
+                .sum();
+            pv += run_pv + run_amount * sched.certain_pv;
         }
         out.pv_simulated = pv;
         // Year k pays: guaranteed cash to all, full contingent cash to lives dying after

@@ -70,10 +70,10 @@ pub struct Schedule {
     pub cash_level: Vec<f64>,
     /// The same, each weighted by f.
     pub cash_slope: Vec<f64>,
-    /// Time of payment 0 in years.
-    pub first_time: f64,
     /// Payments a year.
     pub frequency: f64,
+    /// 1 in arrears (the first payment of a year falls 1/m into it), 0 in advance.
+    pub arrears_offset: i32,
     /// Prefix sums of discounted contingent payments: entry j covers payments 0..j.
     pub pv_prefix: Vec<f64>,
     /// Prefix sums of undiscounted contingent payments: entry j covers payments 0..j.
@@ -109,8 +109,8 @@ impl Schedule {
             certain_cash: vec![0.0; years],
             cash_level: vec![0.0; years],
             cash_slope: vec![0.0; years],
-            first_time,
             frequency: mf,
+            arrears_offset: i32::from(basis.timing == Timing::Arrears),
             pv_prefix: Vec::with_capacity(n_payments + 1),
             cash_prefix: Vec::with_capacity(n_payments + 1),
             year_start: vec![0; years + 1],
@@ -162,15 +162,23 @@ impl Schedule {
         s
     }
 
-    /// Number of payments made to a life that dies at time `t` (payments due before t).
+    /// Number of payments made to a life that dies at time k + f (0 < f < 1; f = 0 has
+    /// probability zero and counts as just after k): those due strictly before death.
+    ///
+    /// Deferral and term are whole years, so policy year k holds either no payment or all m
+    /// of them, at k + j/m in advance or k + (j+1)/m in arrears; the count within the year
+    /// is then ⌈f m⌉ in advance and ⌈f m⌉ − 1 in arrears. This runs once per simulated life,
+    /// so it avoids both the payment times and `f64::ceil` (a library call on baseline
+    /// x86-64).
     #[inline]
-    pub fn payments_before(&self, t: f64) -> usize {
-        let x = ((t - self.first_time) * self.frequency).ceil();
-        if x <= 0.0 {
-            0
-        } else {
-            (x as usize).min(self.pv_prefix.len() - 1)
-        }
+    pub fn payments_before(&self, k: usize, f: f64) -> usize {
+        let start = self.year_start[k] as usize;
+        let in_year = self.year_start[k + 1] as usize - start;
+        // i32 conversions are single instructions; usize ones are not before AVX-512.
+        let x = f * self.frequency;
+        let whole = x as i32;
+        let ceil = whole + i32::from(f64::from(whole) < x);
+        start + ((ceil - self.arrears_offset).max(0) as usize).min(in_year)
     }
 
     /// Expected present value per unit amount given survival `survival[k] = k p x` and
@@ -183,12 +191,6 @@ impl Schedule {
             total += survival[k] * (self.pv_level[k] - self.pv_slope[k] * q[k]);
         }
         total
-    }
-
-    /// Present value per unit amount received by a life dying at time `t`.
-    #[inline]
-    pub fn pv_given_death(&self, t: f64) -> f64 {
-        self.certain_pv + self.pv_prefix[self.payments_before(t)]
     }
 }
 
@@ -239,17 +241,39 @@ mod tests {
     }
 
     #[test]
-    fn payments_before_death_follow_timing() {
-        let adv = Schedule::new(&shape(2, None, 0, 0.0), &basis(Timing::Advance, 4, 0.0), 10);
-        assert_eq!(adv.payments_before(1.9), 0);
-        assert_eq!(adv.payments_before(2.0), 0);
-        assert_eq!(adv.payments_before(2.1), 1);
-        assert_eq!(adv.payments_before(3.0), 4);
+    fn payments_before_death_count_the_payment_times() {
+        // Brute force: count the payment times strictly before death at k + f.
+        for timing in [Timing::Advance, Timing::Arrears] {
+            for (deferral, term) in [(0, None), (2, None), (1, Some(3))] {
+                let b = basis(timing, 4, 0.0);
+                let s = Schedule::new(&shape(deferral, term, 0, 0.0), &b, 10);
+                let times: Vec<f64> = (0..s.pv_prefix.len() - 1)
+                    .map(|j| {
+                        let offset = if timing == Timing::Arrears { 1.0 } else { 0.0 };
+                        f64::from(deferral) + (j as f64 + offset) / 4.0
+                    })
+                    .collect();
+                for k in 0..10 {
+                    for f in [1e-9, 0.1, 0.25, 0.3, 0.5, 0.74, 0.76, 0.99] {
+                        let t = k as f64 + f;
+                        let brute = times.iter().filter(|&&x| x < t).count();
+                        assert_eq!(
+                            s.payments_before(k, f),
+                            brute,
+                            "{timing:?} d={deferral} k={k} f={f}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn year_start_counts_earlier_years() {
         let arr = Schedule::new(&shape(2, None, 0, 0.0), &basis(Timing::Arrears, 4, 0.0), 10);
-        assert_eq!(arr.payments_before(2.25), 0);
-        assert_eq!(arr.payments_before(2.3), 1);
-        assert_eq!(arr.year_start[3], 4);
+        let adv = Schedule::new(&shape(2, None, 0, 0.0), &basis(Timing::Advance, 4, 0.0), 10);
         assert_eq!(arr.year_start[2], 0);
+        assert_eq!(arr.year_start[3], 4);
         assert_eq!(adv.year_start[3], 4);
     }
 }
