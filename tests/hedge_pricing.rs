@@ -6,10 +6,11 @@ use std::path::Path;
 use tailspan::data::{Config, DiscountCurve, Sex};
 use tailspan::hedge::{
     BookResults, ContractSummary, FloatingBasis, HEDGE_COLUMNS, HedgeInputs, QForwardTerms,
-    ReferenceRates, Side, SwapTerms, cost_of_capital, effectiveness, evaluate, hedge_ratio, sharpe,
+    ReferenceCells, ReferenceRates, Side, SwapTerms, cost_of_capital, effectiveness, evaluate,
+    hedge_ratio, sharpe,
 };
 use tailspan::risk::quantile::summarize;
-use tailspan::valuation::ScenarioValue;
+use tailspan::valuation::{RateSurface, ScenarioValue};
 
 /// A scenario whose benefits are `cash` (trend only: no simulated deaths).
 fn scenario(cash: &[f64], pv: f64) -> ScenarioValue {
@@ -128,7 +129,17 @@ fn without_noise_the_swap_is_worth_minus_its_loading() {
     // individual deaths, floating = X₀ and the hedger's net is X₀ − (1 + π) X₀ = −π X₀.
     let cash = [50.0, 48.0, 45.0, 41.0, 36.0, 30.0];
     let central = scenario(&cash, 230.0);
-    let scenarios = vec![central.clone(); 7];
+    // Half the scenarios carry simulated deaths equal to the expected ones.
+    let scenarios: Vec<ScenarioValue> = (0..7)
+        .map(|s| {
+            let mut v = central.clone();
+            if s % 2 == 0 {
+                v.cash_simulated = cash.to_vec();
+                v.pv_simulated = v.pv_expected;
+            }
+            v
+        })
+        .collect();
     let book = BookResults {
         central: &central,
         scenarios: &scenarios,
@@ -454,4 +465,32 @@ fn hedge_ratio_notional_needs_a_varying_rate() {
     .unwrap_err()
     .to_string();
     assert!(err.contains("hedge.qforward[0].notional"), "{err}");
+}
+
+#[test]
+fn reference_cells_are_read_from_each_scenario_or_refused() {
+    let config = Config::parse(CONFIG, Path::new("c.toml")).unwrap();
+    let cells = ReferenceCells::of(config.hedge.as_ref().unwrap());
+    // Ages 60–62, years 2026–2027, row-major by year.
+    let q = [0.01, 0.02, 0.03, 0.011, 0.021, 0.031];
+    let surface = |first_age| RateSurface {
+        first_year: 2026,
+        first_age,
+        ages: 3,
+        q: &q,
+    };
+    // The config's q-forwards settle on q(70, 2027) for F: age 70 is column 1 from 69.
+    let row = cells.read(&[Some(surface(69)), None]).unwrap();
+    assert_eq!(row, [0.021, 0.021]);
+    let err = cells
+        .read(&[Some(surface(60)), None])
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("q(70, 2027)"), "{err}");
+    assert!(cells.read(&[None, Some(surface(69))]).is_err());
+    let refs = cells
+        .assemble(&[0.02, 0.02], &[vec![0.019, 0.019], vec![0.022, 0.022]])
+        .unwrap();
+    assert_eq!(refs[1].realised, [0.019, 0.022]);
+    assert!(cells.assemble(&[0.02], &[]).is_err());
 }

@@ -15,8 +15,8 @@ use rand_distr::{Distribution as _, StandardNormal};
 use tailspan::data::config::Timing;
 use tailspan::data::{Book, Config, DiscountCurve, Policy, Sex};
 use tailspan::hedge::{
-    BookResults, ContractSummary, HedgeInputs, HedgeResults, ReferenceRates, evaluate, hedged_pv,
-    rate_at,
+    BookResults, ContractSummary, HedgeInputs, HedgeResults, ReferenceCells, ReferenceRates,
+    evaluate, hedged_pv, rate_at,
 };
 use tailspan::life::MortalityLaw;
 use tailspan::risk::quantile::summarize;
@@ -151,6 +151,7 @@ fn sample(idiosyncratic: bool) -> Sample {
         YEAR + YEARS as i32 - 1,
     )
     .unwrap();
+    let cells = ReferenceCells::of(config().hedge.as_ref().unwrap());
     let mut ws = Workspace::default();
     let mut value = |k: &[f64], rng: Option<&mut ChaCha8Rng>| {
         let (f, m) = (surface(k, 1.0), surface(k, MALE_LOADING));
@@ -168,28 +169,27 @@ fn sample(idiosyncratic: bool) -> Sample {
                 lives * amount * amount * annuity_variance(prepared.survival(&ws, c))
             })
             .sum();
-        let q_ref = rate_at(&view(&f), 75, 2035).unwrap();
-        (out, variance, q_ref)
+        let row = cells.read(&[Some(view(&f)), Some(view(&m))]).unwrap();
+        assert_eq!(row, [rate_at(&view(&f), 75, 2035).unwrap()]);
+        (out, variance, row)
     };
-    let (central, _, q_central) = value(&kappa(None), None);
-    let mut s = Sample {
-        central,
-        scenarios: Vec::new(),
-        conditional_variance: Vec::new(),
-        reference: ReferenceRates {
-            central: q_central,
-            realised: Vec::new(),
-        },
-    };
+    let (central, _, central_row) = value(&kappa(None), None);
+    let (mut scenarios, mut conditional_variance, mut rows) = (Vec::new(), Vec::new(), Vec::new());
     for scenario in 0..SCENARIOS {
         let mut rng = ChaCha8Rng::seed_from_u64(DEATH_SEED);
         rng.set_stream(scenario);
-        let (out, variance, q) = value(&kappa(Some(scenario)), idiosyncratic.then_some(&mut rng));
-        s.scenarios.push(out);
-        s.conditional_variance.push(variance);
-        s.reference.realised.push(q);
+        let (out, variance, row) = value(&kappa(Some(scenario)), idiosyncratic.then_some(&mut rng));
+        scenarios.push(out);
+        conditional_variance.push(variance);
+        rows.push(row);
     }
-    s
+    let mut references = cells.assemble(&central_row, &rows).unwrap();
+    Sample {
+        central,
+        scenarios,
+        conditional_variance,
+        reference: references.pop().unwrap(),
+    }
 }
 
 const HEDGES: &str = r#"
@@ -226,8 +226,12 @@ maturity = 2035
 premium = 0.03
 "#;
 
+fn config() -> Config {
+    Config::parse(HEDGES, Path::new("c.toml")).unwrap()
+}
+
 fn run(s: &Sample) -> HedgeResults {
-    let config = Config::parse(HEDGES, Path::new("c.toml")).unwrap();
+    let config = config();
     let curve = DiscountCurve::Flat { rate_pa: RATE };
     evaluate(
         config.hedge.as_ref().unwrap(),

@@ -63,7 +63,7 @@ pub use evaluate::{
 };
 pub use legs::{BookResults, Distribution, LegValues};
 pub use pricing::{CostOfCapitalPrice, PremiumQuote, SharpePrice, cost_of_capital, sharpe};
-pub use qforward::{QForwardTerms, ReferenceRates, hedge_ratio, rate_at};
+pub use qforward::{QForwardTerms, ReferenceCells, ReferenceRates, hedge_ratio, rate_at};
 pub use spec::{
     FloatingBasis, HedgeConfig, NotionalChoice, PremiumChoice, QForwardConfig, Side, SwapConfig,
 };

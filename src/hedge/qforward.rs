@@ -10,9 +10,11 @@
 use crate::data::{DiscountCurve, Sex};
 use crate::error::{Error, Result};
 use crate::hedge::legs::LegValues;
+use crate::hedge::spec::HedgeConfig;
 use crate::hedge::spec::Side;
 use crate::risk::quantile::summarize;
 use crate::valuation::RateSurface;
+use crate::valuation::cohort::sex_index;
 
 /// The terms of one q-forward.
 #[derive(Debug, Clone, PartialEq)]
@@ -127,4 +129,58 @@ pub fn rate_at(surface: &RateSurface<'_>, age: i32, year: i32) -> Option<f64> {
         && year >= surface.first_year
         && year <= surface.last_year();
     held.then(|| surface.q(age, year))
+}
+
+/// The population cells the q-forwards settle on, read from each scenario's projected rates
+/// as the scenarios are generated (in any order, on any thread).
+#[derive(Debug, Clone, PartialEq)]
+pub struct ReferenceCells {
+    /// (sex, age, calendar year) of each `[[hedge.qforward]]`, in config order.
+    pub cells: Vec<(Sex, i32, i32)>,
+}
+
+impl ReferenceCells {
+    /// The cells `config`'s q-forwards need.
+    pub fn of(config: &HedgeConfig) -> Self {
+        ReferenceCells {
+            cells: config.reference_cells(),
+        }
+    }
+
+    /// One rate per q-forward from one scenario's surfaces (index 0 F, 1 M).
+    pub fn read(&self, surfaces: &[Option<RateSurface<'_>>; 2]) -> Result<Vec<f64>> {
+        self.cells
+            .iter()
+            .map(|&(sex, age, year)| {
+                surfaces[sex_index(sex)]
+                    .as_ref()
+                    .and_then(|s| rate_at(s, age, year))
+                    .ok_or_else(|| {
+                        Error::model(
+                            "projection",
+                            format!(
+                                "a q-forward settles on q({age}, {year}) for sex {sex}, which the projected rates do not hold"
+                            ),
+                        )
+                    })
+            })
+            .collect()
+    }
+
+    /// Per-contract reference rates from the central path's row and one row per scenario
+    /// (rows as returned by [`Self::read`], in scenario order).
+    pub fn assemble(&self, central: &[f64], scenarios: &[Vec<f64>]) -> Result<Vec<ReferenceRates>> {
+        let n = self.cells.len();
+        if central.len() != n || scenarios.iter().any(|row| row.len() != n) {
+            return Err(Error::Numerical(format!(
+                "reference rates must have one value per q-forward ({n}) in every row"
+            )));
+        }
+        Ok((0..n)
+            .map(|i| ReferenceRates {
+                central: central[i],
+                realised: scenarios.iter().map(|row| row[i]).collect(),
+            })
+            .collect())
+    }
 }
