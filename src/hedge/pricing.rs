@@ -16,6 +16,9 @@ use serde::Serialize;
 use crate::hedge::swap::SwapLegs;
 use crate::risk::quantile::{quantile_sorted, sorted, summarize};
 
+/// The run-off assumption for future capital, as reported.
+pub const CAPITAL_PROJECTION: &str = "in proportion to the remaining best-estimate fixed-leg value (common practice for running off risk-margin capital)";
+
 /// A loading as a rate and as an amount.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PremiumQuote {
@@ -36,6 +39,8 @@ pub struct CostOfCapitalPrice {
     pub capital_level: f64,
     /// Capital at the start: VaR of the provider's run-off loss less its mean (share applied).
     pub capital: f64,
+    /// How future capital was projected, for the report.
+    pub capital_projection: &'static str,
     /// Projected capital held through policy year t, t = 0 .. term − 1 (share applied).
     pub capital_by_year: Vec<f64>,
     /// PV of the capital charges (share applied); equals `premium.amount`.
@@ -104,6 +109,7 @@ pub fn cost_of_capital(
         cost_of_capital,
         capital_level,
         capital: share * capital,
+        capital_projection: CAPITAL_PROJECTION,
         capital_by_year,
         charges_pv: share * charges,
     }
