@@ -40,15 +40,19 @@ p.meta { color: #333; margin-top: 0; }
 table { border-collapse: collapse; margin: .6em 0 1em; font-variant-numeric: tabular-nums; }
 th, td { border-bottom: 1px solid #c8c8c8; padding: .3em .7em; text-align: left; vertical-align: top; }
 thead th { border-bottom: 2px solid #555; }
-th.num, td.num { text-align: right; white-space: nowrap; }
+th.num { text-align: right; }
+td.num { text-align: right; white-space: nowrap; }
+caption { caption-side: top; text-align: left; font-size: .9em; color: #333; padding-bottom: .3em; }
+tbody th { font-weight: normal; min-width: 11em; }
 tr.key td, tr.key th { font-weight: bold; }
 figure { margin: 1.2em 0 1.8em; break-inside: avoid; page-break-inside: avoid; }
 figcaption { font-weight: bold; margin-bottom: .4em; }
 p.note { font-size: .9em; color: #333; margin: .3em 0; }
-svg { display: block; width: 100%; max-width: 900px; height: auto; }
+svg { display: block; width: 100%; max-width: 720px; height: auto; }
 code { font-family: "DejaVu Sans Mono", "Liberation Mono", monospace; font-size: .85em; }
 code.hash { word-break: break-all; }
 section.cautions { border: 1px solid #888; background: #f4f4f4; padding: .2em 1.2em .8em; margin-top: 2em; }
+section.cautions h2 { margin-top: .6em; }
 @page { size: A4; margin: 14mm; }
 @media print {
   body { max-width: none; padding: 0; font-size: 10pt; }
@@ -165,7 +169,7 @@ fn figure(svg: &str, caption: &str, note: Option<&str>) -> String {
 fn table_head(caption: Option<&str>, headers: &[&str]) -> String {
     let mut out = String::from("<table>\n");
     if let Some(c) = caption {
-        let _ = writeln!(out, "<caption class=\"note\">{}</caption>", escape(c));
+        let _ = writeln!(out, "<caption>{}</caption>", escape(c));
     }
     out.push_str("<thead><tr>");
     for h in headers {

@@ -14,7 +14,7 @@ use crate::error::Result;
 use crate::io::report::data::{FanChart, FanMeasure, FanPoint};
 use crate::io::report::format;
 
-const HEIGHT: u32 = 400;
+const HEIGHT: u32 = 350;
 /// Band tints: Okabe–Ito blue mixed with white at 20 %, 40 % and 65 %.
 const BAND_99: RGBColor = RGBColor(204, 227, 240);
 const BAND_90: RGBColor = RGBColor(153, 199, 224);
@@ -119,9 +119,10 @@ pub fn fan_chart(chart: &FanChart) -> Result<String> {
         match chart.measure {
             FanMeasure::MortalityRate { age } => {
                 let (lo, hi) = values;
-                let y_range = (lo / 1.15)..(hi * 1.15);
+                let (lo, hi) = (lo / 1.15, hi * 1.15);
+                let ticks = super::log_ticks(lo, hi, 8);
                 let mut ctx = builder(&plot)
-                    .build_cartesian_2d(x_range, y_range.log_scale())
+                    .build_cartesian_2d(x_range, (lo..hi).log_scale().with_key_points(ticks))
                     .map_err(draw_error)?;
                 ctx.configure_mesh()
                     .x_desc("Calendar year")

@@ -6,13 +6,13 @@
 
 use plotters::prelude::*;
 
-use super::{axis_style, draw_error, label_style, max_ticks, palette, svg, tick_formatter};
+use super::{axis_style, draw_error, label_style, max_ticks, palette, svg};
 use crate::error::{Error, Result};
 use crate::io::report::data::ResidualMap;
 use crate::io::report::format;
 
-const HEIGHT: u32 = 460;
-const LEGEND_WIDTH: u32 = 150;
+const HEIGHT: u32 = 420;
+const LEGEND_WIDTH: u32 = 130;
 /// Residuals beyond this are drawn at the end colours, so one outlier cannot wash out a map.
 pub const MAX_LIMIT: f64 = 4.0;
 
@@ -105,7 +105,7 @@ pub fn residual_heatmap(map: &ResidualMap, limit: f64) -> Result<String> {
         });
     };
     svg(HEIGHT, &title(map), |root| {
-        let (main, legend) = root.split_horizontally(super::WIDTH - LEGEND_WIDTH);
+        let (main, _) = root.split_horizontally(super::WIDTH - LEGEND_WIDTH);
         let x_range = (y0 as f64 - 0.5)..(y1 as f64 + 0.5);
         let y_range = (a0 as f64 - 0.5)..(a1 as f64 + 0.5);
         let mut ctx = ChartBuilder::on(&main)
@@ -142,42 +142,67 @@ pub fn residual_heatmap(map: &ResidualMap, limit: f64) -> Result<String> {
         });
         ctx.draw_series(cells).map_err(draw_error)?;
 
-        let mut bar = ChartBuilder::on(&legend)
-            .margin_top(10)
-            .margin_bottom(10)
-            .margin_right(45)
-            .x_label_area_size(60)
-            .y_label_area_size(75)
-            .build_cartesian_2d(0.0..1.0, -limit..limit)
-            .map_err(draw_error)?;
-        let ticks = tick_formatter(2.0 * limit, 8);
-        bar.configure_mesh()
-            .y_desc("Deviance residual")
-            .y_labels(9)
-            .y_label_formatter(&ticks)
-            .x_labels(0)
-            .label_style(label_style())
-            .axis_desc_style(axis_style())
-            .disable_mesh()
-            .draw()
-            .map_err(draw_error)?;
-        let steps = 64;
-        bar.draw_series((0..steps).map(|i| {
-            let lo = -limit + 2.0 * limit * i as f64 / steps as f64;
-            let hi = -limit + 2.0 * limit * (i + 1) as f64 / steps as f64;
-            Rectangle::new(
-                [(0.0, lo), (1.0, hi)],
-                colour((lo + hi) / 2.0, limit).filled(),
-            )
-        }))
-        .map_err(draw_error)?;
-        bar.draw_series(std::iter::once(Rectangle::new(
-            [(0.0, -limit), (1.0, limit)],
-            palette::BLACK.stroke_width(1),
-        )))
-        .map_err(draw_error)?;
+        // The colour bar spans the plot's height, with ticks on its right.
+        let (_, top) = ctx.backend_coord(&(y0 as f64, a1 as f64 + 0.5));
+        let (_, bottom) = ctx.backend_coord(&(y0 as f64, a0 as f64 - 0.5));
+        draw_colour_bar(root, limit, top, bottom)?;
         Ok(())
     })
+}
+
+/// Draws the colour scale from `-limit` (at `bottom`) to `limit` (at `top`) in the strip
+/// right of the map.
+fn draw_colour_bar<DB: DrawingBackend>(
+    root: &DrawingArea<DB, plotters::coord::Shift>,
+    limit: f64,
+    top: i32,
+    bottom: i32,
+) -> Result<()> {
+    use plotters::style::text_anchor::{HPos, Pos, VPos};
+    let x0 = (super::WIDTH - LEGEND_WIDTH) as i32 + 16;
+    let x1 = x0 + 22;
+    let height = (bottom - top).max(1) as f64;
+    let y_of = |v: f64| bottom - ((v + limit) / (2.0 * limit) * height).round() as i32;
+    let steps = 64;
+    for i in 0..steps {
+        let lo = -limit + 2.0 * limit * i as f64 / steps as f64;
+        let hi = -limit + 2.0 * limit * (i + 1) as f64 / steps as f64;
+        root.draw(&Rectangle::new(
+            [(x0, y_of(hi)), (x1, y_of(lo))],
+            colour((lo + hi) / 2.0, limit).filled(),
+        ))
+        .map_err(draw_error)?;
+    }
+    root.draw(&Rectangle::new(
+        [(x0, top), (x1, bottom)],
+        palette::BLACK.stroke_width(1),
+    ))
+    .map_err(draw_error)?;
+    let step = super::tick_step(2.0 * limit, 8);
+    let text = label_style().pos(Pos::new(HPos::Left, VPos::Center));
+    let count = (2.0 * limit / step).round() as i32;
+    for i in 0..=count {
+        let v = -limit + i as f64 * step;
+        let y = y_of(v);
+        root.draw(&PathElement::new(
+            vec![(x1, y), (x1 + 5, y)],
+            palette::BLACK.stroke_width(1),
+        ))
+        .map_err(draw_error)?;
+        let label = if v > 0.0 {
+            format!("+{}", format::tick(v, step))
+        } else {
+            format::tick(v, step)
+        };
+        root.draw_text(&label, &text, (x1 + 8, y))
+            .map_err(draw_error)?;
+    }
+    let title = axis_style()
+        .transform(FontTransform::Rotate270)
+        .pos(Pos::new(HPos::Center, VPos::Center));
+    root.draw_text("Deviance residual", &title, (x1 + 62, (top + bottom) / 2))
+        .map_err(draw_error)?;
+    Ok(())
 }
 
 /// Caption note on the scale, saying when cells were clipped to it.

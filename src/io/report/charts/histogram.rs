@@ -16,7 +16,7 @@ use crate::error::Result;
 use crate::io::report::data::{LifetimeDistribution, PvDistribution};
 use crate::io::report::format;
 
-const HEIGHT: u32 = 380;
+const HEIGHT: u32 = 340;
 const Y_DESC: &str = "Probability (share of scenarios in bin)";
 
 /// Shares of the finite `values` falling in each of `count` equal bins over `[lo, hi]`.
@@ -109,7 +109,7 @@ pub fn pv_chart(pv: &PvDistribution, currency: &str) -> Result<String> {
     svg(HEIGHT + legend_px, &pv_title(pv), |root| {
         let (strip, plot) = root.split_vertically(legend_px);
         draw_legend(&strip, &legend)?;
-        let x_ticks = max_ticks(WIDTH - 140, 7);
+        let x_ticks = max_ticks(WIDTH - 140, label_chars(x_lo, x_hi));
         let x_format = tick_formatter(x_hi - x_lo, x_ticks);
         let y_format = tick_formatter(top, 6);
         let mut ctx = builder(&plot)
@@ -207,7 +207,7 @@ pub fn lifetime_chart(group: &[&LifetimeDistribution]) -> Result<String> {
     svg(HEIGHT + legend_px, &lifetime_title(age, horizon), |root| {
         let (strip, plot) = root.split_vertically(legend_px);
         draw_legend(&strip, &legend)?;
-        let x_ticks = max_ticks(WIDTH - 140, 5);
+        let x_ticks = max_ticks(WIDTH - 140, label_chars(x_lo, x_hi));
         let x_format = tick_formatter(x_hi - x_lo, x_ticks);
         let y_format = tick_formatter(top, 6);
         let mut ctx = builder(&plot)
@@ -241,14 +241,32 @@ pub fn lifetime_chart(group: &[&LifetimeDistribution]) -> Result<String> {
                 colour.mix(0.18).filled(),
             )))
             .map_err(draw_error)?;
+            // The outline leaves out empty bins at either end, so one sex's baseline is not
+            // drawn across the other's distribution.
+            let first = bar_shares.iter().position(|&s| s > 0.0).unwrap_or(0);
+            let last = bar_shares.iter().rposition(|&s| s > 0.0).unwrap_or(0);
+            let edge = outline[2 * first + 1..=2 * last + 2].to_vec();
+            let start = (edge[0].0, 0.0);
+            let end = (edge[edge.len() - 1].0, 0.0);
+            let edge: Vec<(f64, f64)> = std::iter::once(start)
+                .chain(edge)
+                .chain(std::iter::once(end))
+                .collect();
             ctx.draw_series(std::iter::once(PathElement::new(
-                outline,
+                edge,
                 colour.stroke_width(3),
             )))
             .map_err(draw_error)?;
         }
         Ok(())
     })
+}
+
+/// Characters in the widest tick label of an axis from `lo` to `hi`: the whole part with
+/// its separators, plus room for a decimal or two.
+fn label_chars(lo: f64, hi: f64) -> usize {
+    let whole = |v: f64| format::fixed(v, 0).len();
+    whole(lo).max(whole(hi)) + if hi - lo < 10.0 { 2 } else { 0 }
 }
 
 fn builder<'a, 'b, DB: DrawingBackend>(

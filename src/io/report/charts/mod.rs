@@ -21,7 +21,7 @@ use crate::error::{Error, Result};
 use crate::io::report::format;
 
 /// Width of every chart in SVG pixels; the page scales it down to fit.
-pub const WIDTH: u32 = 900;
+pub const WIDTH: u32 = 720;
 
 /// Okabe & Ito's colour-blind-safe palette (Okabe & Ito 2008, "Color Universal Design").
 pub mod palette {
@@ -46,14 +46,14 @@ pub mod palette {
 }
 
 /// Font size (plotters units; SVG shows 1/1.24 of it) of tick labels and legend text.
-const LABEL_SIZE: f64 = 16.0;
+const LABEL_SIZE: f64 = 18.0;
 /// Font size of axis descriptions.
-const AXIS_SIZE: f64 = 17.0;
+const AXIS_SIZE: f64 = 19.0;
 /// Estimated width of one character of legend or tick text in SVG pixels (DejaVu Sans and
-/// Liberation Sans average about 0.6 em at the 12.9 px the labels are shown at).
-const CHAR_PX: f64 = 8.0;
+/// Liberation Sans average about 0.6 em at the 14.5 px the labels are shown at).
+const CHAR_PX: f64 = 8.2;
 /// Height of one legend row in SVG pixels.
-const LEGEND_ROW: u32 = 24;
+const LEGEND_ROW: u32 = 26;
 
 /// Tick label style.
 fn label_style() -> TextStyle<'static> {
@@ -101,7 +101,7 @@ impl LegendItem {
 
 const SWATCH_PX: i32 = 26;
 const ITEM_GAP_PX: i32 = 28;
-const LEGEND_LEFT_PX: i32 = 90;
+const LEGEND_LEFT_PX: i32 = 70;
 
 /// Width an item takes in the legend strip.
 fn item_width(item: &LegendItem) -> i32 {
@@ -234,6 +234,48 @@ pub fn tick_step(span: f64, max_ticks: usize) -> f64 {
         .unwrap_or(scale)
 }
 
+/// Ticks for a log axis over `[lo, hi]`: powers of ten, or 1-2-5 or 1-to-9 multiples of
+/// them, whichever is the coarsest to give at least four ticks; then thinned so that no
+/// two are closer than `1 / max_ticks` of the axis.
+pub fn log_ticks(lo: f64, hi: f64, max_ticks: usize) -> Vec<f64> {
+    if !(lo > 0.0 && hi > lo && lo.is_finite() && hi.is_finite()) {
+        return Vec::new();
+    }
+    let sets: [&[f64]; 3] = [
+        &[1.0],
+        &[1.0, 2.0, 5.0],
+        &[1.0, 2.0, 3.0, 4.0, 5.0, 6.0, 7.0, 8.0, 9.0],
+    ];
+    let mut ticks = Vec::new();
+    for multipliers in sets {
+        ticks.clear();
+        let (first, last) = (lo.log10().floor() as i32, hi.log10().ceil() as i32);
+        for k in first..=last {
+            let decade = 10f64.powi(k);
+            for m in multipliers {
+                let v = m * decade;
+                if v >= lo * (1.0 - 1e-9) && v <= hi * (1.0 + 1e-9) {
+                    ticks.push(v);
+                }
+            }
+        }
+        if ticks.len() >= 4 {
+            break;
+        }
+    }
+    let min_gap = (hi / lo).log10() / max_ticks.max(1) as f64;
+    let mut kept: Vec<f64> = Vec::with_capacity(ticks.len());
+    for t in ticks {
+        if kept
+            .last()
+            .is_none_or(|&k| (t / k).log10() >= min_gap * (1.0 - 1e-9))
+        {
+            kept.push(t);
+        }
+    }
+    kept
+}
+
 /// Ticks that fit along an axis `pixels` long when each label is about `label_chars` wide.
 pub fn max_ticks(pixels: u32, label_chars: usize) -> usize {
     let per_label = text_width(&"0".repeat(label_chars.max(1))) + 36.0;
@@ -278,6 +320,30 @@ mod tests {
         assert_eq!(tick_step(130.0, 10), 10.0);
         assert_eq!(tick_step(1.0, 8), 0.1);
         assert_eq!(tick_step(0.3, 6), 0.05);
+    }
+
+    #[test]
+    fn log_ticks_get_denser_on_short_ranges() {
+        let close = |a: Vec<f64>, b: &[f64]| {
+            a.len() == b.len() && a.iter().zip(b).all(|(x, y)| (x / y - 1.0).abs() < 1e-9)
+        };
+        assert!(close(
+            log_ticks(1e-4, 1.0, 8),
+            &[1e-4, 1e-3, 1e-2, 0.1, 1.0]
+        ));
+        assert!(close(
+            log_ticks(0.002, 0.03, 8),
+            &[0.002, 0.005, 0.01, 0.02]
+        ));
+        assert!(close(
+            log_ticks(0.03, 0.09, 10),
+            &[0.03, 0.04, 0.05, 0.06, 0.07, 0.08, 0.09]
+        ));
+        // log10(0.2 / 0.05) / 8 = 0.075: 0.07 is too close to 0.06, 0.09 to 0.08.
+        assert!(close(
+            log_ticks(0.05, 0.2, 8),
+            &[0.05, 0.06, 0.08, 0.1, 0.2]
+        ));
     }
 
     #[test]
