@@ -393,3 +393,39 @@ fn sexes_in_fit_table_use_words() {
     assert!(html.contains("<td>Females</td>"));
     assert!(!html.contains(&format!("<td>{}</td>", Sex::F)));
 }
+
+#[test]
+fn missing_values_show_as_not_available_without_failing() {
+    let mut data = ReportData::example();
+    let nan = f64::NAN;
+    for fan in &mut data.fans {
+        fan.history[3].value = nan;
+        fan.projection[5].q950 = nan;
+        fan.projection[6].q500 = f64::INFINITY;
+    }
+    data.residuals[0].residuals[2][2] = nan;
+    data.lifetimes[0].values[0] = nan;
+    if let Some(pv) = &mut data.present_values {
+        pv.values[0] = nan;
+        pv.stressed = Some(nan);
+    }
+    if let Some(c) = &mut data.capital {
+        c.run_off[0].tvar = nan;
+    }
+    data.fit[1].bic = nan;
+    data.hedges[0].capital_without = 0.0;
+    let html = report::render(&data).unwrap();
+    let doc = parse(&html);
+    assert_eq!(svg_titles(&doc).len(), 13);
+    let rows = table_rows(&doc, "Run-off view");
+    let tvar = rows.iter().find(|r| r[0] == "TVaR 99.5 %").unwrap();
+    assert_eq!(tvar[1], "n/a");
+    // A hedge on a book without capital has no reduction to show.
+    let hedges = table_rows(&doc, "Contract");
+    assert_eq!(hedges[1][5], "n/a");
+    // A model without a BIC is not ranked.
+    let fit = table_rows(&doc, "Model");
+    assert!(fit.iter().any(|r| r[7] == "n/a"));
+    // The stressed marker is left out of the legend rather than drawn at NaN.
+    assert!(!html.contains("Standard-formula stressed value"));
+}

@@ -44,6 +44,7 @@ th.num { text-align: right; }
 td.num { text-align: right; white-space: nowrap; }
 caption { caption-side: top; text-align: left; font-size: .9em; color: #333; padding-bottom: .3em; }
 tbody th { font-weight: normal; min-width: 11em; }
+tbody td:first-child { white-space: nowrap; }
 tr.key td, tr.key th { font-weight: bold; }
 figure { margin: 1.2em 0 1.8em; break-inside: avoid; page-break-inside: avoid; }
 figcaption { font-weight: bold; margin-bottom: .4em; }
