@@ -8,6 +8,7 @@
 use serde::Serialize;
 
 use crate::data::Sex;
+use crate::models::FitDiagnostics;
 use crate::risk::capital::CapitalSummary;
 
 /// Everything `report.html` shows; every section is optional.
@@ -99,6 +100,21 @@ pub struct FitRow {
     pub bic: f64,
     /// Number of free parameters.
     pub parameters: usize,
+}
+
+impl FitRow {
+    /// The row for `model` fitted to `sex` with diagnostics `fit`.
+    pub fn from_diagnostics(model: &str, sex: Sex, fit: &FitDiagnostics) -> Self {
+        FitRow {
+            model: model.to_string(),
+            sex,
+            log_likelihood: fit.log_likelihood,
+            deviance: fit.deviance,
+            aic: fit.aic,
+            bic: fit.bic,
+            parameters: fit.parameters,
+        }
+    }
 }
 
 /// Deviance residuals of one fit by age and year.
