@@ -378,15 +378,6 @@ fn write_is_atomic_and_serialises() {
     assert!(!failed.exists());
 }
 
-/// Writes the example report for looking at it (`tests/tools/report-screenshot`):
-/// `TAILSPAN_REPORT_EXAMPLE=target/report-example.html cargo test --test report_page`.
-#[test]
-fn write_example_when_asked() {
-    if let Some(path) = std::env::var_os("TAILSPAN_REPORT_EXAMPLE") {
-        report::write(&path, &ReportData::example()).unwrap();
-    }
-}
-
 #[test]
 fn sexes_in_fit_table_use_words() {
     let html = report::render(&ReportData::example()).unwrap();

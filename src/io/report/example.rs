@@ -74,7 +74,7 @@ impl ReportData {
                                 let ridge = if (1925..=1935).contains(&born) {
                                     1.2 + 0.6 * i as f64
                                 } else {
-                                    0.0
+                                    -0.15
                                 };
                                 ridge + normal(&mut rng) * (0.9 + 0.2 * i as f64)
                             })
