@@ -235,7 +235,7 @@ pub fn tick_step(span: f64, max_ticks: usize) -> f64 {
 }
 
 /// Ticks for a log axis over `[lo, hi]`: powers of ten, or 1-2-5 or 1-to-9 multiples of
-/// them, whichever is the coarsest to give at least four ticks; then thinned so that no
+/// them, whichever is the coarsest to give at least three ticks; then thinned so that no
 /// two are closer than `1 / max_ticks` of the axis.
 pub fn log_ticks(lo: f64, hi: f64, max_ticks: usize) -> Vec<f64> {
     if !(lo > 0.0 && hi > lo && lo.is_finite() && hi.is_finite()) {
@@ -259,7 +259,7 @@ pub fn log_ticks(lo: f64, hi: f64, max_ticks: usize) -> Vec<f64> {
                 }
             }
         }
-        if ticks.len() >= 4 {
+        if ticks.len() >= 3 {
             break;
         }
     }
@@ -339,11 +339,9 @@ mod tests {
             log_ticks(0.03, 0.09, 10),
             &[0.03, 0.04, 0.05, 0.06, 0.07, 0.08, 0.09]
         ));
-        // log10(0.2 / 0.05) / 8 = 0.075: 0.07 is too close to 0.06, 0.09 to 0.08.
-        assert!(close(
-            log_ticks(0.05, 0.2, 8),
-            &[0.05, 0.06, 0.08, 0.1, 0.2]
-        ));
+        assert!(close(log_ticks(0.05, 0.2, 8), &[0.05, 0.1, 0.2]));
+        // log10(3) / 4 = 0.119 apart at least: 0.05 is too close to 0.04, 0.07 to 0.06, ...
+        assert!(close(log_ticks(0.03, 0.09, 4), &[0.03, 0.04, 0.06, 0.08]));
     }
 
     #[test]
