@@ -8,7 +8,7 @@ use plotters::prelude::*;
 
 use super::{
     LegendItem, Swatch, WIDTH, axis_style, draw_error, draw_legend, finite_range, label_style,
-    legend_height, max_ticks, padded, palette, svg, tick_formatter,
+    legend_height, linear_ticks, max_ticks, padded, palette, svg,
 };
 use crate::error::Result;
 use crate::io::report::data::{FanChart, FanMeasure, FanPoint};
@@ -141,8 +141,8 @@ pub fn fan_chart(chart: &FanChart) -> Result<String> {
             }
             FanMeasure::PeriodLifeExpectancy { age } => {
                 let (lo, hi) = padded(values, 0.05);
-                let y_ticks = 8;
-                let y_format = tick_formatter(hi - lo, y_ticks);
+                let y_ticks = linear_ticks(lo, hi, 8);
+                let y_format = |v: &f64| y_ticks.label(*v);
                 let mut ctx = builder(&plot)
                     .build_cartesian_2d(x_range, lo..hi)
                     .map_err(draw_error)?;
@@ -150,7 +150,7 @@ pub fn fan_chart(chart: &FanChart) -> Result<String> {
                     .x_desc("Calendar year")
                     .y_desc(format!("Period life expectancy at age {age} (years)"))
                     .x_labels(x_ticks)
-                    .y_labels(y_ticks)
+                    .y_labels(y_ticks.max_ticks)
                     .x_label_formatter(&x_format)
                     .y_label_formatter(&y_format)
                     .label_style(label_style())

@@ -178,11 +178,9 @@ fn draw_colour_bar<DB: DrawingBackend>(
         palette::BLACK.stroke_width(1),
     ))
     .map_err(draw_error)?;
-    let step = super::tick_step(2.0 * limit, 8);
+    let ticks = super::linear_ticks(-limit, limit, 9);
     let text = label_style().pos(Pos::new(HPos::Left, VPos::Center));
-    let count = (2.0 * limit / step).round() as i32;
-    for i in 0..=count {
-        let v = -limit + i as f64 * step;
+    for &v in &ticks.values {
         let y = y_of(v);
         root.draw(&PathElement::new(
             vec![(x1, y), (x1 + 5, y)],
@@ -190,9 +188,9 @@ fn draw_colour_bar<DB: DrawingBackend>(
         ))
         .map_err(draw_error)?;
         let label = if v > 0.0 {
-            format!("+{}", format::tick(v, step))
+            format!("+{}", ticks.label(v))
         } else {
-            format::tick(v, step)
+            ticks.label(v)
         };
         root.draw_text(&label, &text, (x1 + 8, y))
             .map_err(draw_error)?;

@@ -9,7 +9,7 @@ use plotters::prelude::*;
 
 use super::{
     LegendItem, Swatch, WIDTH, axis_style, draw_error, draw_legend, finite_range, label_style,
-    legend_height, max_ticks, padded, palette, svg, tick_formatter,
+    legend_height, linear_ticks, max_ticks, padded, palette, svg,
 };
 use crate::data::Sex;
 use crate::error::Result;
@@ -109,17 +109,18 @@ pub fn pv_chart(pv: &PvDistribution, currency: &str) -> Result<String> {
     svg(HEIGHT + legend_px, &pv_title(pv), |root| {
         let (strip, plot) = root.split_vertically(legend_px);
         draw_legend(&strip, &legend)?;
-        let x_ticks = max_ticks(WIDTH - 140, label_chars(x_lo, x_hi));
-        let x_format = tick_formatter(x_hi - x_lo, x_ticks);
-        let y_format = tick_formatter(top, 6);
+        let x_ticks = linear_ticks(x_lo, x_hi, max_ticks(WIDTH - 140, label_chars(x_lo, x_hi)));
+        let y_ticks = linear_ticks(0.0, top, 6);
+        let x_format = |v: &f64| x_ticks.label(*v);
+        let y_format = |v: &f64| y_ticks.label(*v);
         let mut ctx = builder(&plot)
             .build_cartesian_2d(x_lo..x_hi, 0.0..top)
             .map_err(draw_error)?;
         ctx.configure_mesh()
             .x_desc(format!("Present value ({unit})"))
             .y_desc(Y_DESC)
-            .x_labels(x_ticks)
-            .y_labels(6)
+            .x_labels(x_ticks.max_ticks)
+            .y_labels(y_ticks.max_ticks)
             .x_label_formatter(&x_format)
             .y_label_formatter(&y_format)
             .label_style(label_style())
@@ -207,9 +208,10 @@ pub fn lifetime_chart(group: &[&LifetimeDistribution]) -> Result<String> {
     svg(HEIGHT + legend_px, &lifetime_title(age, horizon), |root| {
         let (strip, plot) = root.split_vertically(legend_px);
         draw_legend(&strip, &legend)?;
-        let x_ticks = max_ticks(WIDTH - 140, label_chars(x_lo, x_hi));
-        let x_format = tick_formatter(x_hi - x_lo, x_ticks);
-        let y_format = tick_formatter(top, 6);
+        let x_ticks = linear_ticks(x_lo, x_hi, max_ticks(WIDTH - 140, label_chars(x_lo, x_hi)));
+        let y_ticks = linear_ticks(0.0, top, 6);
+        let x_format = |v: &f64| x_ticks.label(*v);
+        let y_format = |v: &f64| y_ticks.label(*v);
         let mut ctx = builder(&plot)
             .build_cartesian_2d(x_lo..x_hi, 0.0..top)
             .map_err(draw_error)?;
@@ -218,8 +220,8 @@ pub fn lifetime_chart(group: &[&LifetimeDistribution]) -> Result<String> {
                 "Truncated life expectancy e°{age}:{horizon} (years)"
             ))
             .y_desc(Y_DESC)
-            .x_labels(x_ticks)
-            .y_labels(6)
+            .x_labels(x_ticks.max_ticks)
+            .y_labels(y_ticks.max_ticks)
             .x_label_formatter(&x_format)
             .y_label_formatter(&y_format)
             .label_style(label_style())

@@ -219,19 +219,48 @@ fn with_title(svg: &str, title: &str) -> String {
     }
 }
 
-/// Largest step of the form {1, 2, 5} × 10^k at most `span / max_ticks`: a lower bound of
-/// the step plotters picks for that many ticks, so labels formatted for it never collide.
-pub fn tick_step(span: f64, max_ticks: usize) -> f64 {
-    if !(span.is_finite() && span > 0.0) || max_ticks == 0 {
-        return 1.0;
+/// Tick positions plotters draws on a linear axis, and the step between them.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LinearTicks {
+    /// The label count asked of plotters; pass it to `x_labels` / `y_labels`.
+    pub max_ticks: usize,
+    /// Tick values, ascending.
+    pub values: Vec<f64>,
+    /// Distance between neighbouring ticks.
+    pub step: f64,
+}
+
+impl LinearTicks {
+    /// The label of tick `value`, with as many decimals as the step needs.
+    pub fn label(&self, value: f64) -> String {
+        format::tick(value, self.step)
     }
-    let raw = span / max_ticks as f64;
-    let scale = 10f64.powf(raw.log10().floor());
-    [5.0, 2.0, 1.0]
-        .into_iter()
-        .map(|m| m * scale)
-        .find(|&s| s <= raw * (1.0 + 1e-9))
-        .unwrap_or(scale)
+}
+
+/// The ticks plotters puts on a linear axis over `[lo, hi]` when asked for at most
+/// `max_ticks` (steps of 1, 2 or 5 × 10^k), so labels can show exactly the decimals the
+/// step needs: `20`, `21` rather than `20.0`, `21.0`, and never `0.1`, `0.1` for 0.12, 0.14.
+pub fn linear_ticks(lo: f64, hi: f64, max_ticks: usize) -> LinearTicks {
+    use plotters::coord::ranged1d::Ranged;
+    use plotters::coord::types::RangedCoordf64;
+    let values = if lo.is_finite() && hi.is_finite() && hi > lo {
+        RangedCoordf64::from(lo..hi).key_points(max_ticks)
+    } else {
+        Vec::new()
+    };
+    let step = values
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .fold(f64::INFINITY, f64::min);
+    LinearTicks {
+        max_ticks,
+        values,
+        step: if step.is_finite() && step > 0.0 {
+            step
+        } else {
+            1.0
+        },
+    }
 }
 
 /// Ticks for a log axis over `[lo, hi]`: powers of ten, or 1-2-5 or 1-to-9 multiples of
@@ -282,12 +311,6 @@ pub fn max_ticks(pixels: u32, label_chars: usize) -> usize {
     ((pixels as f64 / per_label).floor() as usize).clamp(2, 12)
 }
 
-/// Formats tick labels of a linear axis spanning `span` with at most `max_ticks` ticks.
-pub fn tick_formatter(span: f64, max_ticks: usize) -> impl Fn(&f64) -> String {
-    let step = tick_step(span, max_ticks);
-    move |v: &f64| format::tick(*v, step)
-}
-
 /// Smallest and largest finite value of `values`, or `None` if there is none.
 pub fn finite_range(values: impl IntoIterator<Item = f64>) -> Option<(f64, f64)> {
     values
@@ -315,11 +338,20 @@ mod tests {
     use super::*;
 
     #[test]
-    fn steps_are_nice_and_bounded() {
-        assert_eq!(tick_step(100.0, 10), 10.0);
-        assert_eq!(tick_step(130.0, 10), 10.0);
-        assert_eq!(tick_step(1.0, 8), 0.1);
-        assert_eq!(tick_step(0.3, 6), 0.05);
+    fn linear_ticks_use_nice_steps() {
+        let t = linear_ticks(1975.0, 2105.0, 10);
+        assert_eq!(t.step, 20.0);
+        assert_eq!(t.values.first(), Some(&1980.0));
+        assert_eq!(t.values.last(), Some(&2100.0));
+        let t = linear_ticks(0.0, 0.087, 6);
+        assert!((t.step - 0.02).abs() < 1e-12);
+        assert_eq!(t.values.len(), 5);
+        assert_eq!(t.label(t.values[3]), "0.06");
+        let t = linear_ticks(19.2, 23.6, 8);
+        assert_eq!(t.step, 1.0);
+        assert_eq!(t.label(t.values[0]), "20");
+        let t = linear_ticks(-4.0, 4.0, 9);
+        assert_eq!(t.values, [-4.0, -3.0, -2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0]);
     }
 
     #[test]
