@@ -1,5 +1,6 @@
 //! Output: atomic writers for JSON, CSV and Parquet, the report and its charts.
 
 pub mod atomic;
+pub mod report;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};
