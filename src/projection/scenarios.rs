@@ -14,12 +14,14 @@ use rand::RngExt;
 use rand_distr::StandardNormal;
 use rayon::prelude::*;
 
+use crate::data::config::{ProjectionConfig, UncertaintyMethod};
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::models::FittedModel;
 use crate::projection::joint::JointBasis;
 use crate::projection::streams::{Purpose, stream};
 use crate::projection::uncertainty::{BootstrapSource, Uncertainty, bootstrap_basis, drawn_drift};
+use crate::valuation::RateSurface;
 
 /// How scenarios are drawn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -32,6 +34,25 @@ pub struct Settings {
     pub noise: bool,
     /// Parameter uncertainty of the stochastic scenarios.
     pub uncertainty: Uncertainty,
+}
+
+impl Settings {
+    /// The settings of the `[projection]` table.
+    pub fn from_config(config: &ProjectionConfig) -> Settings {
+        let uncertainty = match config.parameter_uncertainty.method() {
+            UncertaintyMethod::None => Uncertainty::None,
+            UncertaintyMethod::Drift => Uncertainty::Drift,
+            UncertaintyMethod::Bootstrap => Uncertainty::Bootstrap {
+                samples: config.bootstrap_samples,
+            },
+        };
+        Settings {
+            seed: config.seed,
+            horizon: config.horizon,
+            noise: config.noise,
+            uncertainty,
+        }
+    }
 }
 
 /// The scenario numbers of a run: `0..=scenarios` with noise, only `0` without.
@@ -112,6 +133,16 @@ impl ScenarioPaths {
     /// q of the sex at `sex_index` at `age` in `year`, if both are projected.
     pub fn q(&self, sex_index: usize, year: i32, age: i32) -> Option<f64> {
         Some(self.year_rates(sex_index, year)?[self.ages.index(age)?])
+    }
+
+    /// Rates of the sex at `sex_index` as the valuation reads them.
+    pub fn surface(&self, sex_index: usize) -> RateSurface<'_> {
+        RateSurface {
+            first_year: self.years.first,
+            first_age: self.ages.first,
+            ages: self.ages.len(),
+            q: self.rates(sex_index),
+        }
     }
 
     /// Projected indices of the sex at `sex_index` in projected year number `h` (1-based).
