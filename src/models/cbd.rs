@@ -212,6 +212,10 @@ fn fit_year(
             return Err("the binomial information matrix is singular (singular design)".into());
         }
         let (mut s1, mut s2) = ((i22 * u1 - i12 * u2) / det, (i11 * u2 - i12 * u1) / det);
+        // Half the Newton decrement, Uᵀ I⁻¹ U / 2, is the increase in ℓ the step promises;
+        // unlike a difference of two log-likelihoods it does not lose precision to the
+        // large constant terms.
+        let promised = 0.5 * (s1 * u1 + s2 * u2);
         // Step halving keeps every iteration an ascent; a full step is almost always taken.
         let mut current = log_likelihood(k1 + s1, k2 + s2);
         let mut halvings = 0;
@@ -226,7 +230,7 @@ fn fit_year(
         if !(current.is_finite() && k1.is_finite() && k2.is_finite()) {
             return Err("the binomial fit diverged".into());
         }
-        if (current - previous).abs() < tolerance {
+        if promised.abs() < tolerance {
             return Ok((k1, k2, it));
         }
         previous = current;

@@ -418,9 +418,16 @@ fn poisson_fit(
     let mut num = vec![0.0; n_ages];
     let mut den = vec![0.0; n_ages];
     let mut factor = vec![0.0; n_ages];
-    let constant = poisson_constant(deaths, exposure);
+    let crude_log: Vec<f64> = deaths
+        .iter()
+        .zip(exposure)
+        .map(|(d, e)| if *d > 0.0 { (d / e).ln() } else { 0.0 })
+        .collect();
 
-    let mut previous = refresh(&mut fitted, deaths, exposure, &ax, &bx, &kt) + constant;
+    // ℓ = ℓ_saturated − deviance/2, so the change in ℓ is minus the change in half the
+    // deviance; the deviance is a sum of small non-negative terms and keeps its precision
+    // where ℓ itself (large terms that cancel) would not.
+    let mut previous = refresh(&mut fitted, deaths, exposure, &crude_log, &ax, &bx, &kt);
     for cycle in 1..=max_iterations {
         // a_x: Newton step on each row, then scale each row's fitted deaths.
         num.fill(0.0);
@@ -472,7 +479,7 @@ fn poisson_fit(
         for i in 0..n_ages {
             bx[i] += num[i] / den[i];
         }
-        let current = refresh(&mut fitted, deaths, exposure, &ax, &bx, &kt) + constant;
+        let current = refresh(&mut fitted, deaths, exposure, &crude_log, &ax, &bx, &kt);
         if !current.is_finite() {
             return Err(Error::model(
                 NAME,
@@ -498,44 +505,35 @@ fn poisson_fit(
     ))
 }
 
-/// Recomputes every fitted death count and returns Σ [d ln(fitted) − fitted] without the
-/// ln d! constant, over cells with positive exposure (zero-exposure cells fit zero).
+/// Recomputes every fitted death count and returns half the Poisson deviance,
+/// Σ [d (ln(d/E) − η) − (d − fitted)] over cells with positive exposure (zero-exposure
+/// cells fit zero deaths and add nothing).
 fn refresh(
     fitted: &mut [f64],
     deaths: &[f64],
     exposure: &[f64],
+    crude_log: &[f64],
     ax: &[f64],
     bx: &[f64],
     kt: &[f64],
 ) -> f64 {
     let n_ages = ax.len();
-    let mut ll = 0.0;
-    for (((fcol, dcol), ecol), k) in fitted
+    let mut half_deviance = 0.0;
+    for ((((fcol, dcol), ecol), lcol), k) in fitted
         .chunks_exact_mut(n_ages)
         .zip(deaths.chunks_exact(n_ages))
         .zip(exposure.chunks_exact(n_ages))
+        .zip(crude_log.chunks_exact(n_ages))
         .zip(kt)
     {
         for i in 0..n_ages {
             let eta = ax[i] + bx[i] * k;
             let f = ecol[i] * eta.exp();
             fcol[i] = f;
-            if ecol[i] > 0.0 {
-                ll += dcol[i] * (ecol[i].ln() + eta) - f;
-            }
+            half_deviance += dcol[i] * (lcol[i] - eta) - (dcol[i] - f);
         }
     }
-    ll
-}
-
-/// −Σ ln d! over cells with positive exposure, so the cycle's likelihood is the full one.
-fn poisson_constant(deaths: &[f64], exposure: &[f64]) -> f64 {
-    deaths
-        .iter()
-        .zip(exposure)
-        .filter(|(_, e)| **e > 0.0)
-        .map(|(d, _)| -libm::lgamma(d + 1.0))
-        .sum()
+    half_deviance
 }
 
 /// Every age and every year needs some exposure and some deaths, or its parameter has no
