@@ -87,11 +87,15 @@ impl ParquetSink {
 
     /// Writes the footer and renames the file into place.
     pub fn finish(self) -> Result<()> {
-        let file = self
-            .writer
+        self.close()?.commit()
+    }
+
+    /// Writes the footer but leaves the file under its temporary name, so that several
+    /// outputs can be completed first and then committed together.
+    pub fn close(self) -> Result<AtomicFile> {
+        self.writer
             .into_inner()
-            .map_err(|e| parquet_error(&self.path, e))?;
-        file.commit()
+            .map_err(|e| parquet_error(&self.path, e))
     }
 }
 

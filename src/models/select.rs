@@ -21,7 +21,20 @@ pub struct ModelFit {
     pub random_walk: RandomWalk,
 }
 
+impl std::fmt::Debug for ModelFit {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("ModelFit")
+            .field("model", &self.model.name())
+            .field("method", &self.model.method())
+            .field("sex", &self.model.sex())
+            .field("diagnostics", self.model.diagnostics())
+            .field("random_walk", &self.random_walk)
+            .finish()
+    }
+}
+
 /// Every configured model fitted to every sex.
+#[derive(Debug)]
 pub struct FitSet {
     /// Fits in config order: sex by sex, kind by kind.
     pub fits: Vec<ModelFit>,
