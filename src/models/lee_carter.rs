@@ -573,10 +573,16 @@ fn require_information(population: &Population) -> Result<()> {
     Ok(())
 }
 
-/// Starting values for the Poisson fit: the SVD fit of log rates smoothed towards each
-/// age's pooled rate, (D + r_x)/(E + 1), which is finite even in zero cells; if that has
-/// no usable age pattern, flat b_x with k_t from each year's pooled rate.
+/// Starting values for the Poisson fit: the SVD fit when every cell has deaths; otherwise
+/// the SVD fit of log rates smoothed towards each age's pooled rate r_x,
+/// ln((D + r_x)/(E + 1)), which is finite even in zero cells; if neither has a usable age
+/// pattern, flat b_x with k_t from each year's pooled rate.
 fn starting_values(population: &Population) -> Parameters {
+    if let Ok(log_rates) = observed_log_rates(population)
+        && let Ok(start) = svd_fit(&log_rates)
+    {
+        return start;
+    }
     let (n_ages, n_years) = (population.ages.len(), population.years.len());
     let pooled: Vec<f64> = (0..n_ages)
         .map(|i| population.deaths.row(i).sum() / population.exposure.row(i).sum())
