@@ -32,13 +32,14 @@ pub fn run(args: &FitArgs, _quiet: bool) -> Result<()> {
     print_table(&fits)
 }
 
-/// The experience the config names.
+/// The experience the config names, restricted to its sexes, ages and years.
 fn load_experience(config: &Config) -> Result<Experience> {
-    Err(Error::config(
-        &config.file,
-        "data.experience",
-        "reading the experience file is not available in this build yet",
-    ))
+    Experience::load(
+        &config.resolve(&config.data.experience),
+        config.ages(),
+        config.years(),
+        &config.data.sexes,
+    )
 }
 
 /// Fits every configured kind to every configured sex of `experience` and writes

@@ -2,10 +2,37 @@
 //!
 //! Durations (deferral, term, guarantee) are whole years so that every payment lines up
 //! with the annual grid of projected rates; m-thly payments within a year use UDD.
+//!
+//! The CSV needs `id,sex,age,amount` and may add `deferral`, `term`, `guarantee`,
+//! `escalation`, `weight` and `mortality_factor`, in any order. Unknown columns are
+//! rejected, so a misspelt optional column never falls back to its default unnoticed.
+//! An empty optional field takes the default (an empty `term` is whole life).
 
-use std::path::PathBuf;
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
 
-use crate::data::Sex;
+use crate::data::csv_input::{self, MAX_AGE, Row, Table};
+use crate::data::{Config, Sex};
+use crate::error::{Error, Result};
+
+/// Columns every book must have.
+pub const BOOK_REQUIRED: [&str; 4] = ["id", "sex", "age", "amount"];
+
+/// Columns a book may add, each with a default.
+pub const BOOK_OPTIONAL: [&str; 6] = [
+    "deferral",
+    "term",
+    "guarantee",
+    "escalation",
+    "weight",
+    "mortality_factor",
+];
+
+/// Largest mortality factor accepted (the same bound as the config's factors).
+pub const MAX_MORTALITY_FACTOR: f64 = 10.0;
+
+/// Largest escalation rate accepted; above it the value is almost surely a percentage.
+pub const MAX_ESCALATION: f64 = 0.25;
 
 /// One annuity policy (or a group of identical lives, by `weight`).
 #[derive(Debug, Clone, PartialEq)]
@@ -60,6 +87,110 @@ impl Policy {
 }
 
 impl Book {
+    /// Reads and checks the book CSV at `path`.
+    ///
+    /// Rejects: duplicate or empty ids, unknown sex codes, ages outside 0..=130, amounts
+    /// that are not positive, durations that are not whole non-negative years, a zero term,
+    /// a guarantee longer than the term, a first payment beyond age 130, escalation outside
+    /// ±25 % (3 meaning 3 % gets a hint), weights or mortality factors that are not
+    /// positive (or mortality factors above 10), an empty book, and unknown columns.
+    pub fn load(path: &Path) -> Result<Book> {
+        let table = Table::read(path, &BOOK_REQUIRED, &BOOK_OPTIONAL)?;
+        if table.is_empty() {
+            return Err(table.file_error("empty book: no policies after the header"));
+        }
+        let mut policies = Vec::with_capacity(table.len());
+        let mut ids: HashMap<String, usize> = HashMap::with_capacity(table.len());
+        for row in table.rows() {
+            let policy = read_policy(&row)?;
+            if let Some(first) = ids.insert(policy.id.clone(), row.line) {
+                return Err(row.error(
+                    "id",
+                    format!("duplicate id `{}`: also on row {first}", policy.id),
+                ));
+            }
+            policies.push(policy);
+        }
+        Ok(Book {
+            source: path.to_path_buf(),
+            policies,
+        })
+    }
+
+    /// The book a config names (`None` if it names none), checked against the fitted
+    /// window with [`Book::check_window`].
+    pub fn from_config(config: &Config) -> Result<Option<Book>> {
+        let Some(path) = &config.data.book else {
+            return Ok(None);
+        };
+        let book = Book::load(&config.resolve(path))?;
+        book.check_window(config)?;
+        Ok(Some(book))
+    }
+
+    /// Checks every policy is of a fitted sex and no younger than the first fitted age:
+    /// projected rates start there, so a younger life could not be valued.
+    pub fn check_window(&self, config: &Config) -> Result<()> {
+        let first_age = config.ages().first;
+        for p in &self.policies {
+            if !config.data.sexes.contains(&p.sex) {
+                return Err(Error::config(
+                    &config.file,
+                    "data.sexes",
+                    format!(
+                        "policy `{}` in {} is of sex {}, which is not fitted",
+                        p.id,
+                        self.source.display(),
+                        p.sex
+                    ),
+                ));
+            }
+            if p.age < first_age {
+                return Err(Error::config(
+                    &config.file,
+                    "data.ages",
+                    format!(
+                        "policy `{}` in {} is aged {}, below the first fitted age {first_age}; rates are not projected below it",
+                        p.id,
+                        self.source.display(),
+                        p.age
+                    ),
+                ));
+            }
+        }
+        Ok(())
+    }
+
+    /// Writes the book as CSV with every column (an empty `term` is whole life) to `path`
+    /// atomically; [`Book::load`] gives back the same values.
+    pub fn write_csv(&self, path: &Path) -> Result<()> {
+        self.write_unpublished(path)?.commit()
+    }
+
+    /// As [`Book::write_csv`] but left under a temporary name until committed.
+    pub fn write_unpublished(&self, path: &Path) -> Result<crate::io::AtomicFile> {
+        let header: Vec<&str> = BOOK_REQUIRED
+            .iter()
+            .chain(&BOOK_OPTIONAL)
+            .copied()
+            .collect();
+        let rows = self.policies.iter().map(|p| {
+            vec![
+                p.id.clone(),
+                p.sex.code().to_string(),
+                p.age.to_string(),
+                p.amount.to_string(),
+                p.deferral.to_string(),
+                p.term.map(|t| t.to_string()).unwrap_or_default(),
+                p.guarantee.to_string(),
+                p.escalation.to_string(),
+                p.weight.to_string(),
+                p.mortality_factor.to_string(),
+            ]
+        });
+        csv_input::write_unpublished(path, &header, rows)
+    }
+
     /// Total lives (sum of weights) of `sex`.
     pub fn lives(&self, sex: Sex) -> f64 {
         self.policies
@@ -77,4 +208,116 @@ impl Book {
             .map(|p| p.amount * p.weight)
             .sum()
     }
+}
+
+/// Reads and checks one policy row.
+fn read_policy(row: &Row<'_>) -> Result<Policy> {
+    let id = row.required("id")?.to_string();
+    let sex: Sex = row
+        .required("sex")?
+        .parse()
+        .map_err(|rule: String| row.error("sex", rule))?;
+    let age = row.whole("age")?;
+    if !(0..=MAX_AGE as i64).contains(&age) {
+        return Err(row.error(
+            "age",
+            format!("{age} is impossible: ages last birthday run from 0 to {MAX_AGE}"),
+        ));
+    }
+    let age = age as i32;
+    let amount = row.number("amount")?;
+    if amount <= 0.0 {
+        return Err(row.error(
+            "amount",
+            format!("must be a positive annual amount, found {amount}"),
+        ));
+    }
+    let deferral = years(row, "deferral")?.unwrap_or(0);
+    let term = years(row, "term")?;
+    if term == Some(0) {
+        return Err(row.error(
+            "term",
+            "must be at least 1 year; leave it empty for a whole-life annuity",
+        ));
+    }
+    let guarantee = years(row, "guarantee")?.unwrap_or(0);
+    if let Some(term) = term
+        && guarantee > term
+    {
+        return Err(row.error(
+            "guarantee",
+            format!("{guarantee} years is longer than the term of {term} years"),
+        ));
+    }
+    if age as i64 + deferral as i64 > MAX_AGE as i64 {
+        return Err(row.error(
+            "deferral",
+            format!("{deferral} years from age {age} puts the first payment beyond age {MAX_AGE}"),
+        ));
+    }
+    let escalation = row.optional_number("escalation")?.unwrap_or(0.0);
+    if escalation.abs() > MAX_ESCALATION {
+        let hint = if escalation >= 1.0 {
+            format!(
+                "; write rates as decimals ({} for {escalation} %)",
+                escalation / 100.0
+            )
+        } else {
+            String::new()
+        };
+        return Err(row.error(
+            "escalation",
+            format!(
+                "{escalation} is not a plausible annual escalation rate (between -{MAX_ESCALATION} and {MAX_ESCALATION}){hint}"
+            ),
+        ));
+    }
+    let weight = positive(row, "weight", "lives represented by the row")?;
+    let mortality_factor = positive(row, "mortality_factor", "multiplier of the population q")?;
+    if mortality_factor > MAX_MORTALITY_FACTOR {
+        return Err(row.error(
+            "mortality_factor",
+            format!("{mortality_factor} is implausible: at most {MAX_MORTALITY_FACTOR}"),
+        ));
+    }
+    Ok(Policy {
+        id,
+        sex,
+        age,
+        amount,
+        deferral,
+        term,
+        guarantee,
+        escalation,
+        weight,
+        mortality_factor,
+    })
+}
+
+/// An optional whole, non-negative number of years.
+fn years(row: &Row<'_>, column: &str) -> Result<Option<u32>> {
+    match row.optional_whole(column)? {
+        None => Ok(None),
+        Some(v) if (0..=MAX_AGE as i64).contains(&v) => Ok(Some(v as u32)),
+        Some(v) if v < 0 => Err(row.error(
+            column,
+            format!("must be a whole number of years, not negative, found {v}"),
+        )),
+        Some(v) => Err(row.error(
+            column,
+            format!("{v} years is longer than any lifetime (at most {MAX_AGE})"),
+        )),
+    }
+}
+
+/// An optional positive multiplier, default 1.
+fn positive(row: &Row<'_>, column: &str, what: &str) -> Result<f64> {
+    let value = row.optional_number(column)?.unwrap_or(1.0);
+    if value <= 0.0 {
+        return Err(row.error(
+            column,
+            format!("must be positive ({what}; default 1), found {value}"),
+        ));
+    }
+    Ok(value)
 }

@@ -124,7 +124,8 @@ pub struct ModelConfig {
     /// Old-age closure law.
     #[serde(default = "default_closure")]
     pub closure: ClosureKind,
-    /// Number of top fitted ages the closure law is fitted to.
+    /// Number of top fitted ages the closure law is fitted to (default 10, or all fitted
+    /// ages when fewer).
     #[serde(default = "default_closure_fit_ages")]
     pub closure_fit_ages: usize,
     /// Highest age; q is 1 there.
@@ -298,8 +299,12 @@ fn default_kind() -> KindList {
 fn default_closure() -> ClosureKind {
     ClosureKind::Kannisto
 }
+/// Marks `closure_fit_ages` as unset; [`Config::parse`] replaces it by the default.
+const CLOSURE_FIT_AGES_UNSET: usize = usize::MAX;
+/// Default number of top ages the closure is fitted to (fewer if fewer ages are fitted).
+const DEFAULT_CLOSURE_FIT_AGES: usize = 10;
 fn default_closure_fit_ages() -> usize {
-    10
+    CLOSURE_FIT_AGES_UNSET
 }
 fn default_max_age() -> i32 {
     120
@@ -354,7 +359,7 @@ impl Default for ModelConfig {
             fit: None,
             refit_kt: false,
             closure: default_closure(),
-            closure_fit_ages: default_closure_fit_ages(),
+            closure_fit_ages: CLOSURE_FIT_AGES_UNSET,
             max_age: default_max_age(),
             tolerance: default_tolerance(),
             max_iterations: default_max_iterations(),
@@ -436,12 +441,15 @@ impl Config {
     /// Reads, parses and checks the config at `path`.
     pub fn load(path: &Path) -> Result<Config> {
         let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
-        let text = String::from_utf8(bytes).map_err(|e| Error::File {
-            file: path.to_path_buf(),
-            rule: format!(
-                "not valid UTF-8 (byte {} is not part of a UTF-8 character)",
-                e.utf8_error().valid_up_to()
-            ),
+        let text = String::from_utf8(bytes).map_err(|e| {
+            let good = &e.as_bytes()[..e.utf8_error().valid_up_to()];
+            let line = good.iter().filter(|&&b| b == b'\n').count() + 1;
+            Error::File {
+                file: path.to_path_buf(),
+                rule: format!(
+                    "not valid UTF-8: line {line} has a byte that is not part of a UTF-8 character; save the file as UTF-8"
+                ),
+            }
         })?;
         Config::parse(&text, path)
     }
@@ -464,6 +472,10 @@ impl Config {
             Error::config(path, key, message)
         })?;
         config.file = path.to_path_buf();
+        if config.model.closure_fit_ages == CLOSURE_FIT_AGES_UNSET {
+            let n_ages = (config.data.ages[1] - config.data.ages[0] + 1).max(2) as usize;
+            config.model.closure_fit_ages = DEFAULT_CLOSURE_FIT_AGES.min(n_ages);
+        }
         config.base = path
             .parent()
             .map(Path::to_path_buf)
@@ -575,7 +587,10 @@ impl Config {
         if m.closure_fit_ages < 2 || m.closure_fit_ages > n_ages {
             return Err(self.err(
                 "model.closure_fit_ages",
-                format!("must be between 2 and the number of fitted ages ({n_ages})"),
+                format!(
+                    "must be between 2 and the number of fitted ages ({n_ages}), found {}",
+                    m.closure_fit_ages
+                ),
             ));
         }
         if !(m.tolerance.is_finite() && m.tolerance > 0.0) {
@@ -648,10 +663,13 @@ impl Config {
             if !(f.factor.is_finite() && f.factor > 0.0 && f.factor <= 10.0) {
                 return Err(self.err(&format!("{key}.factor"), "must be in (0, 10]"));
             }
-            if f.ages[1] < f.ages[0] {
+            if f.ages[1] < f.ages[0] || f.ages[0] < 0 || f.ages[1] > 130 {
                 return Err(self.err(
                     &format!("{key}.ages"),
-                    "must be [first, last], first <= last",
+                    format!(
+                        "must be [first, last] with 0 <= first <= last <= 130, found {:?}",
+                        f.ages
+                    ),
                 ));
             }
         }
@@ -698,6 +716,15 @@ years = [1975, 2024]
         assert_eq!(c.model.kinds(), vec![ModelKind::LeeCarter]);
         assert_eq!(c.valuation_year(), 2025);
         assert_eq!(c.resolve(Path::new("e.csv")), PathBuf::from("dir/e.csv"));
+    }
+
+    #[test]
+    fn closure_default_fits_a_short_window() {
+        let text = MINIMAL.replace("[55, 100]", "[55, 60]");
+        let c = Config::parse(&text, Path::new("c.toml")).unwrap();
+        assert_eq!(c.model.closure_fit_ages, 6);
+        let c = Config::parse(MINIMAL, Path::new("c.toml")).unwrap();
+        assert_eq!(c.model.closure_fit_ages, 10);
     }
 
     #[test]

@@ -1,6 +1,21 @@
 //! Discounting: a flat annual rate or a curve of annual spot rates.
+//!
+//! Rates are annual effective decimals. A rate above 25 % a year is refused rather than
+//! used: in practice it is a percentage typed as a number (3 for 3 %), and discounting at
+//! 300 % would silently wipe out the book's value.
 
-use std::path::PathBuf;
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+use crate::data::Config;
+use crate::data::csv_input::Table;
+use crate::error::{Error, Result};
+
+/// Columns of the spot-rate CSV.
+pub const CURVE_COLUMNS: [&str; 2] = ["term", "rate"];
+
+/// Largest absolute annual rate accepted; larger values are taken for percentages.
+pub const MAX_RATE: f64 = 0.25;
 
 /// A discount curve: v(t) for any time t ≥ 0 in years.
 #[derive(Debug, Clone, PartialEq)]
@@ -23,6 +38,65 @@ pub enum DiscountCurve {
 }
 
 impl DiscountCurve {
+    /// Reads a spot-rate CSV `term,rate`: terms in years, > 0 and strictly increasing;
+    /// annual effective rates above −1 and at most 25 % in size.
+    pub fn load(path: &Path) -> Result<DiscountCurve> {
+        let table = Table::read(path, &CURVE_COLUMNS, &[])?;
+        if table.is_empty() {
+            return Err(table.file_error("no rates after the header"));
+        }
+        let mut terms: Vec<f64> = Vec::with_capacity(table.len());
+        let mut rates = Vec::with_capacity(table.len());
+        for row in table.rows() {
+            let term = row.number("term")?;
+            if term <= 0.0 {
+                return Err(row.error("term", format!("must be above 0 years, found {term}")));
+            }
+            if let Some(&previous) = terms.last()
+                && term <= previous
+            {
+                return Err(row.error(
+                    "term",
+                    format!("terms must increase strictly: {term} follows {previous}"),
+                ));
+            }
+            let rate = row.number("rate")?;
+            check_rate(rate).map_err(|rule| row.error("rate", rule))?;
+            terms.push(term);
+            rates.push(rate);
+        }
+        Ok(DiscountCurve::Spot {
+            source: path.to_path_buf(),
+            terms,
+            rates,
+        })
+    }
+
+    /// The discount basis a config asks for: `valuation.rate` (flat) or `valuation.curve`.
+    /// Neither is an error naming `valuation.rate`: a book is never valued at a rate
+    /// nobody chose.
+    pub fn from_config(config: &Config) -> Result<DiscountCurve> {
+        let v = &config.valuation;
+        match (v.rate, &v.curve) {
+            (Some(_), Some(_)) => Err(Error::config(
+                &config.file,
+                "valuation.rate",
+                "give either `rate` or `curve`, not both",
+            )),
+            (Some(rate_pa), None) => {
+                check_rate(rate_pa)
+                    .map_err(|rule| Error::config(&config.file, "valuation.rate", rule))?;
+                Ok(DiscountCurve::Flat { rate_pa })
+            }
+            (None, Some(curve)) => DiscountCurve::load(&config.resolve(curve)),
+            (None, None) => Err(Error::config(
+                &config.file,
+                "valuation.rate",
+                "no discount basis: set `valuation.rate` (e.g. 0.03 for 3 %) or `valuation.curve` (a `term,rate` CSV) to value the book",
+            )),
+        }
+    }
+
     /// The annual spot rate for term `t` years.
     pub fn spot_rate(&self, t: f64) -> f64 {
         match self {
@@ -45,5 +119,49 @@ impl DiscountCurve {
     /// The discount factor v(t) = (1 + s(t))^(−t).
     pub fn discount(&self, t: f64) -> f64 {
         (1.0 + self.spot_rate(t)).powf(-t)
+    }
+}
+
+/// Checks an annual effective rate is above −1 and plausibly a decimal, not a percentage.
+pub fn check_rate(rate: f64) -> Result<(), String> {
+    if !rate.is_finite() || rate <= -1.0 {
+        return Err(format!("{rate} must be a number above -1"));
+    }
+    if rate.abs() > MAX_RATE {
+        return Err(format!(
+            "{rate} would be an annual rate of {:.0} %; write rates as decimals ({} for {rate} %), at most {MAX_RATE} in size",
+            rate * 100.0,
+            rate / 100.0
+        ));
+    }
+    Ok(())
+}
+
+impl fmt::Display for DiscountCurve {
+    /// A one-line description of the basis, for summaries.
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            DiscountCurve::Flat { rate_pa } => {
+                write!(f, "flat {:.2} % a year", rate_pa * 100.0)
+            }
+            DiscountCurve::Spot {
+                source,
+                terms,
+                rates,
+            } => {
+                let lo = rates.iter().copied().fold(f64::INFINITY, f64::min);
+                let hi = rates.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                write!(
+                    f,
+                    "spot curve {} ({} terms, {}-{} years, rates {:.2} % to {:.2} %, flat beyond)",
+                    source.display(),
+                    terms.len(),
+                    terms[0],
+                    terms[terms.len() - 1],
+                    lo * 100.0,
+                    hi * 100.0
+                )
+            }
+        }
     }
 }

@@ -6,6 +6,7 @@
 
 pub mod book;
 pub mod config;
+pub mod csv_input;
 pub mod curve;
 pub mod experience;
 pub mod sex;

@@ -57,6 +57,15 @@ impl AtomicFile {
         temp.as_file()
             .sync_all()
             .map_err(|e| Error::io(&target, e))?;
+        // Temporary files are created owner-only; results are meant to be shared like any
+        // other file the user writes.
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            temp.as_file()
+                .set_permissions(fs::Permissions::from_mode(0o644))
+                .map_err(|e| Error::io(&target, e))?;
+        }
         temp.persist(&target)
             .map_err(|e| Error::io(&target, e.error))?;
         Ok(())
@@ -108,5 +117,11 @@ mod tests {
         assert_eq!(fs::read_dir(dir.path()).unwrap().count(), 0);
         write_bytes(&target, b"whole").unwrap();
         assert_eq!(fs::read(&target).unwrap(), b"whole");
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = fs::metadata(&target).unwrap().permissions().mode();
+            assert_eq!(mode & 0o777, 0o644);
+        }
     }
 }

@@ -54,17 +54,33 @@ impl MortalityLaw {
         }
     }
 
+    /// Integrated force `∫_0^t μ(x + s) ds` for t ≥ 0, exact (infinite past a limiting age).
+    pub fn cumulative_force(&self, x: f64, t: f64) -> f64 {
+        if t <= 0.0 {
+            return 0.0;
+        }
+        // expm1 keeps c^t − 1 accurate for short intervals, where c^t is close to 1.
+        let gompertz = |b: f64, c: f64| b * c.powf(x) * (t * c.ln()).exp_m1() / c.ln();
+        match *self {
+            MortalityLaw::Gompertz { b, c } => gompertz(b, c),
+            MortalityLaw::Makeham { a, b, c } => a * t + gompertz(b, c),
+            MortalityLaw::Constant { mu } => mu * t,
+            MortalityLaw::DeMoivre { omega } => {
+                if x + t >= omega {
+                    f64::INFINITY
+                } else {
+                    -(-t / (omega - x)).ln_1p()
+                }
+            }
+        }
+    }
+
     /// Survival probability `t p x` for t ≥ 0, exact.
     pub fn survival(&self, x: f64, t: f64) -> f64 {
         if t <= 0.0 {
             return 1.0;
         }
         match *self {
-            MortalityLaw::Gompertz { b, c } => (-b * c.powf(x) * (c.powf(t) - 1.0) / c.ln()).exp(),
-            MortalityLaw::Makeham { a, b, c } => {
-                (-a * t - b * c.powf(x) * (c.powf(t) - 1.0) / c.ln()).exp()
-            }
-            MortalityLaw::Constant { mu } => (-mu * t).exp(),
             MortalityLaw::DeMoivre { omega } => {
                 if x >= omega {
                     0.0
@@ -72,12 +88,16 @@ impl MortalityLaw {
                     ((omega - x - t) / (omega - x)).max(0.0)
                 }
             }
+            _ => (-self.cumulative_force(x, t)).exp(),
         }
     }
 
-    /// One-year death probability q x = 1 − p x.
+    /// One-year death probability q x = 1 − p x, accurate even where q is tiny.
     pub fn q(&self, x: f64) -> f64 {
-        1.0 - self.survival(x, 1.0)
+        match *self {
+            MortalityLaw::DeMoivre { .. } => 1.0 - self.survival(x, 1.0),
+            _ => -(-self.cumulative_force(x, 1.0)).exp_m1(),
+        }
     }
 
     /// Limiting age, if the law has one.

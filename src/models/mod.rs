@@ -17,7 +17,10 @@ pub mod select;
 
 pub use cbd::{Cbd, CbdFit, CbdParams};
 pub use lee_carter::{LeeCarter, LeeCarterFit, LeeCarterMethod, LeeCarterParams};
-pub use select::{FitSet, ModelFit, RankEntry, build_model, fit_population};
+pub use select::{
+    FitDocument, FitRecord, FitSet, ModelFit, RankEntry, TimeSeriesRecord, build_model,
+    fit_population,
+};
 
 /// Goodness-of-fit measures every fit reports.
 #[derive(Debug, Clone, PartialEq, Serialize)]

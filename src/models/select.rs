@@ -12,6 +12,7 @@ use crate::data::{Experience, Population, Sex};
 use crate::error::Result;
 use crate::models::{CbdParams, FittedModel, LeeCarterMethod, LeeCarterParams, MortalityModel};
 use crate::projection::RandomWalk;
+use crate::projection::random_walk::RandomWalkSummary;
 
 /// One fitted model with its period indices' random walk.
 pub struct ModelFit {
@@ -55,6 +56,64 @@ pub struct RankEntry {
     pub bic: f64,
     /// BIC minus the sex's lowest BIC.
     pub delta_bic: f64,
+}
+
+/// The `fit.json` document: one record per fit, then the BIC ranking.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitDocument {
+    /// Crate version that wrote the file.
+    pub version: &'static str,
+    /// One record per sex and kind.
+    pub fits: Vec<FitRecord>,
+    /// BIC ranking within each sex, when several kinds are fitted.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub ranking: Option<Vec<RankEntry>>,
+}
+
+/// One fit as written to `fit.json`.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitRecord {
+    /// Model name.
+    pub model: &'static str,
+    /// Estimation method.
+    pub method: &'static str,
+    /// Sex of the population.
+    pub sex: Sex,
+    /// Fitted ages, inclusive.
+    pub ages: [i32; 2],
+    /// Fitted years, inclusive.
+    pub years: [i32; 2],
+    /// Highest age of the closed table.
+    pub max_age: i32,
+    /// Fitted parameters by name.
+    pub parameters: serde_json::Value,
+    /// Maximised log-likelihood (constants included).
+    pub log_likelihood: f64,
+    /// Deviance against the saturated model.
+    pub deviance: f64,
+    /// Effective number of parameters.
+    pub parameter_count: usize,
+    /// Cells with positive exposure.
+    pub observations: usize,
+    /// Akaike information criterion.
+    pub aic: f64,
+    /// Bayesian information criterion.
+    pub bic: f64,
+    /// Iterations of the fit.
+    pub iterations: usize,
+    /// Time-series estimates for the projection.
+    pub time_series: TimeSeriesRecord,
+}
+
+/// The period indices' time-series model and its estimates.
+#[derive(Debug, Clone, Serialize)]
+pub struct TimeSeriesRecord {
+    /// Time-series model name.
+    pub kind: &'static str,
+    /// Names of the indices, in the order of the estimates.
+    pub factors: &'static [&'static str],
+    /// Drift, volatility, covariance and the drift's standard error.
+    pub estimates: RandomWalkSummary,
 }
 
 /// Builds the checked model of `kind` from the `[model]` settings.
@@ -150,43 +209,40 @@ impl FitSet {
     }
 
     /// The `fit.json` document.
-    pub fn document(&self) -> serde_json::Value {
-        let fits: Vec<serde_json::Value> = self
+    pub fn document(&self) -> FitDocument {
+        let fits = self
             .fits
             .iter()
             .map(|f| {
                 let m = &f.model;
                 let d = m.diagnostics();
-                serde_json::json!({
-                    "model": m.name(),
-                    "method": m.method(),
-                    "sex": m.sex(),
-                    "ages": [m.ages().first, m.ages().last],
-                    "years": [m.years().first, m.years().last],
-                    "max_age": m.max_age(),
-                    "parameters": m.parameters_json(),
-                    "log_likelihood": d.log_likelihood,
-                    "deviance": d.deviance,
-                    "parameter_count": d.parameter_count,
-                    "observations": d.observations,
-                    "aic": d.aic,
-                    "bic": d.bic,
-                    "iterations": d.iterations,
-                    "time_series": {
-                        "kind": "random-walk-with-drift",
-                        "factors": m.factor_names(),
-                        "estimates": f.random_walk.summary(),
+                FitRecord {
+                    model: m.name(),
+                    method: m.method(),
+                    sex: m.sex(),
+                    ages: [m.ages().first, m.ages().last],
+                    years: [m.years().first, m.years().last],
+                    max_age: m.max_age(),
+                    parameters: m.parameters_json(),
+                    log_likelihood: d.log_likelihood,
+                    deviance: d.deviance,
+                    parameter_count: d.parameter_count,
+                    observations: d.observations,
+                    aic: d.aic,
+                    bic: d.bic,
+                    iterations: d.iterations,
+                    time_series: TimeSeriesRecord {
+                        kind: "random-walk-with-drift",
+                        factors: m.factor_names(),
+                        estimates: f.random_walk.summary(),
                     },
-                })
+                }
             })
             .collect();
-        let mut doc = serde_json::json!({
-            "version": crate::VERSION,
-            "fits": fits,
-        });
-        if self.several_kinds() {
-            doc["ranking"] = serde_json::to_value(self.ranking()).unwrap_or_default();
+        FitDocument {
+            version: crate::VERSION,
+            fits,
+            ranking: self.several_kinds().then(|| self.ranking()),
         }
-        doc
     }
 }

@@ -1,1 +1,8 @@
 //! Risk measures: quantiles, VaR/TVaR, capital and shocks.
+//!
+//! Kept apart from valuation so that the same measures serve a single run, a merge of
+//! shards and the one-year framework.
+
+pub mod quantile;
+
+pub use quantile::{quantile_sorted, summarize, tvar_sorted};
