@@ -68,6 +68,14 @@ pub enum Error {
     /// A numerical guard tripped (a NaN or an out-of-range rate about to be written).
     #[error("numerical problem: {0}")]
     Numerical(String),
+    /// Data handed to the report does not fit together (e.g. a matrix and its labels).
+    #[error("report section `{section}`: {rule}")]
+    Report {
+        /// The report section at fault.
+        section: String,
+        /// The rule that was broken.
+        rule: String,
+    },
     /// Reading or writing a file failed.
     #[error("{}: {source}", path.display())]
     Io {

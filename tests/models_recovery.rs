@@ -208,7 +208,7 @@ fn diagnostics_follow_the_textbook_formulas() {
     let diag = fit.diagnostics();
     assert!((diag.deviance - deviance).abs() < 1e-9 * deviance);
     let nu = (2 * 20 + 20 - 2) as f64;
-    assert_eq!(diag.parameter_count, 58);
+    assert_eq!(diag.parameters, 58);
     assert_eq!(diag.observations, cells);
     assert!((diag.aic - (2.0 * nu - 2.0 * diag.log_likelihood)).abs() < 1e-9);
     let bic = nu * (cells as f64).ln() - 2.0 * diag.log_likelihood;

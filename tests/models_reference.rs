@@ -55,7 +55,7 @@ fn cbd_fit_matches_statsmodels_glm() {
             assert!((a - b).abs() < 1e-6, "{name}: {a} vs {b}");
         }
     }
-    assert_eq!(fit.diagnostics().parameter_count, 2 * 20);
+    assert_eq!(fit.diagnostics().parameters, 2 * 20);
 }
 
 #[test]

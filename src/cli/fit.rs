@@ -197,7 +197,7 @@ fn print_table(fits: &FitSet) -> Result<()> {
             m.method(),
             d.log_likelihood,
             d.deviance,
-            d.parameter_count,
+            d.parameters,
             d.aic,
             d.bic,
             d.iterations,

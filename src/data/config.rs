@@ -10,6 +10,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
+use crate::hedge::HedgeConfig;
 
 /// The whole configuration file.
 #[derive(Debug, Clone, Deserialize, Serialize)]
@@ -32,6 +33,9 @@ pub struct Config {
     /// Where results go.
     #[serde(default)]
     pub output: OutputConfig,
+    /// Longevity hedges to price (optional).
+    #[serde(default)]
+    pub hedge: Option<HedgeConfig>,
     /// Folder of the config file; input and output paths are relative to it.
     #[serde(skip)]
     pub base: PathBuf,
@@ -694,6 +698,9 @@ impl Config {
         }
         if c.one_year && c.one_year_scenarios == 0 {
             return Err(self.err("capital.one_year_scenarios", "must be at least 1"));
+        }
+        if let Some(hedge) = &self.hedge {
+            hedge.check(self)?;
         }
         Ok(())
     }

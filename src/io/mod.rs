@@ -2,6 +2,7 @@
 
 pub mod atomic;
 pub mod parquet;
+pub mod report;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};
 pub use parquet::ParquetSink;

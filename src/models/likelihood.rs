@@ -64,7 +64,7 @@ impl FitDiagnostics {
         FitDiagnostics {
             log_likelihood,
             deviance,
-            parameter_count,
+            parameters: parameter_count,
             observations,
             aic: 2.0 * nu - 2.0 * log_likelihood,
             bic: nu * (observations as f64).ln() - 2.0 * log_likelihood,

@@ -30,7 +30,7 @@ pub struct FitDiagnostics {
     /// Deviance against the saturated model.
     pub deviance: f64,
     /// Effective number of parameters (after identifiability constraints).
-    pub parameter_count: usize,
+    pub parameters: usize,
     /// Number of cells fitted (cells with positive exposure).
     pub observations: usize,
     /// Akaike information criterion: 2 ν − 2 ℓ.

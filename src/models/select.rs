@@ -226,7 +226,7 @@ impl FitSet {
                     parameters: m.parameters_json(),
                     log_likelihood: d.log_likelihood,
                     deviance: d.deviance,
-                    parameter_count: d.parameter_count,
+                    parameter_count: d.parameters,
                     observations: d.observations,
                     aic: d.aic,
                     bic: d.bic,

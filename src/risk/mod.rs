@@ -3,6 +3,8 @@
 //! Kept apart from valuation so that the same measures serve a single run, a merge of
 //! shards and the one-year framework.
 
+pub mod capital;
 pub mod quantile;
 
+pub use capital::{CapitalSummary, StressFigures, TailFigures};
 pub use quantile::{quantile_sorted, summarize, tvar_sorted};

@@ -1,1 +1,11 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
+
+pub mod cohort;
+pub mod lifetimes;
+pub mod portfolio;
+pub mod schedule;
+
+pub use cohort::{Cohort, LevelAdjustment, RateSurface};
+pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
+pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
+pub use schedule::{Basis, PaymentShape, Schedule};

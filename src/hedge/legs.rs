@@ -1,0 +1,163 @@
+//! What every hedge shares: the book's per-scenario results as inputs, year-end settlement
+//! discounting, per-scenario leg values and the summary of their distributions.
+//!
+//! Hedges settle once a year, at the end of each policy year (time k + 1 for policy year
+//! k), because a year's realised benefits or rate are known only when the year is over;
+//! annual net settlement in arrears is common practice for longevity swaps and q-forwards.
+
+use serde::Serialize;
+
+use crate::data::DiscountCurve;
+use crate::error::{Error, Result};
+use crate::risk::capital::REPORTED_QUANTILES;
+use crate::risk::quantile::{quantile_sorted, sorted, summarize};
+use crate::valuation::ScenarioValue;
+
+/// The book's valuation results as the hedges see them.
+#[derive(Debug, Clone, Copy)]
+pub struct BookResults<'a> {
+    /// The central path (noise off): its `cash_expected` are the best-estimate benefits and
+    /// its `pv_expected` is the best estimate.
+    pub central: &'a ScenarioValue,
+    /// Every scenario's values, in scenario order.
+    pub scenarios: &'a [ScenarioValue],
+}
+
+impl<'a> BookResults<'a> {
+    /// Checks the shapes and values the hedges rely on.
+    pub fn check(&self) -> Result<()> {
+        if self.scenarios.is_empty() {
+            return Err(Error::Numerical("hedges need at least one scenario".into()));
+        }
+        let years = self.central.cash_expected.len();
+        if years == 0 || !all_finite(&self.central.cash_expected) {
+            return Err(Error::Numerical(
+                "the central path has no finite best-estimate cash flows".into(),
+            ));
+        }
+        if !self.central.pv_expected.is_finite() {
+            return Err(Error::Numerical("the best estimate is not finite".into()));
+        }
+        for (s, v) in self.scenarios.iter().enumerate() {
+            let cash = realised_cash(v);
+            if cash.len() != years || !all_finite(cash) || !book_pv(v).is_finite() {
+                return Err(Error::Numerical(format!(
+                    "scenario {s}: cash flows must cover {years} policy years with finite values, found {} years",
+                    cash.len()
+                )));
+            }
+            if !v.cash_simulated.is_empty() && v.cash_expected.len() != years {
+                return Err(Error::Numerical(format!(
+                    "scenario {s}: expected cash flows cover {} policy years, not {years}",
+                    v.cash_expected.len()
+                )));
+            }
+        }
+        Ok(())
+    }
+
+    /// Policy years of cash flow.
+    pub fn years(&self) -> usize {
+        self.central.cash_expected.len()
+    }
+
+    /// The best estimate of the book's PV.
+    pub fn best_estimate(&self) -> f64 {
+        self.central.pv_expected
+    }
+
+    /// The book's PV in every scenario (with individual deaths when they were simulated).
+    pub fn pv(&self) -> Vec<f64> {
+        self.scenarios.iter().map(book_pv).collect()
+    }
+
+    /// Standard deviation of the idiosyncratic part of the PV, `pv_simulated − pv_expected`;
+    /// `None` when individual deaths were not simulated.
+    pub fn idiosyncratic_sd(&self) -> Option<f64> {
+        let gaps: Vec<f64> = self
+            .scenarios
+            .iter()
+            .map(|v| v.pv_simulated - v.pv_expected)
+            .collect();
+        all_finite(&gaps).then(|| summarize(&gaps).std_dev)
+    }
+}
+
+/// The realised benefits of a scenario: simulated when individual deaths were simulated,
+/// else the expected benefits on its path.
+pub fn realised_cash(v: &ScenarioValue) -> &[f64] {
+    if v.cash_simulated.is_empty() {
+        &v.cash_expected
+    } else {
+        &v.cash_simulated
+    }
+}
+
+/// The book's PV in a scenario: simulated when individual deaths were simulated.
+pub fn book_pv(v: &ScenarioValue) -> f64 {
+    if v.pv_simulated.is_finite() {
+        v.pv_simulated
+    } else {
+        v.pv_expected
+    }
+}
+
+fn all_finite(values: &[f64]) -> bool {
+    values.iter().all(|x| x.is_finite())
+}
+
+/// Discount factors of the year-end settlements of policy years `0..years`: v(k + 1).
+pub fn settlement_discounts(curve: &DiscountCurve, years: usize) -> Vec<f64> {
+    (0..years).map(|k| curve.discount(k as f64 + 1.0)).collect()
+}
+
+/// PV of yearly amounts settled at year-end, over the years `discounts` covers.
+pub fn settled_pv(cash: &[f64], discounts: &[f64]) -> f64 {
+    cash.iter().zip(discounts).map(|(c, v)| c * v).sum()
+}
+
+/// One contract's legs per scenario, as PVs at the valuation date, seen by the book's owner.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LegValues {
+    /// PV of the fixed leg (the same in every scenario).
+    pub fixed_leg: f64,
+    /// PV of the floating leg per scenario.
+    pub floating_leg: Vec<f64>,
+    /// Value to the book's owner per scenario (its side's receipts less its payments).
+    pub net: Vec<f64>,
+    /// Value to the book's owner on the central path.
+    pub net_central: f64,
+}
+
+/// Mean, spread and quantiles of a per-scenario quantity.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Distribution {
+    /// Arithmetic mean.
+    pub mean: f64,
+    /// Sample standard deviation (divisor n − 1).
+    pub std_dev: f64,
+    /// Smallest value.
+    pub min: f64,
+    /// Largest value.
+    pub max: f64,
+    /// (probability, Hyndman–Fan type-7 quantile) pairs.
+    pub quantiles: Vec<(f64, f64)>,
+}
+
+impl Distribution {
+    /// Summarises a non-empty sample.
+    pub fn of(values: &[f64]) -> Self {
+        let stats = summarize(values);
+        let s = sorted(values);
+        Distribution {
+            mean: stats.mean,
+            std_dev: stats.std_dev,
+            min: stats.min,
+            max: stats.max,
+            quantiles: REPORTED_QUANTILES
+                .iter()
+                .map(|&p| (p, quantile_sorted(&s, p)))
+                .collect(),
+        }
+    }
+}

@@ -1,0 +1,32 @@
+//! `report.html`: the page a risk committee reads.
+//!
+//! The report is drawn from [`ReportData`], plain numbers and strings, so the pipeline
+//! fills it in one call and the renderer never touches models or scenario files. Sections
+//! whose data is absent are left out rather than drawn empty.
+
+pub mod charts;
+pub mod data;
+mod example;
+pub mod format;
+pub mod html;
+
+use std::path::Path;
+
+pub use data::{
+    BasisItem, CapitalColumn, CapitalTable, FAN_PROBABILITIES, FanChart, FanMeasure, FanPoint,
+    FitRow, HedgeRow, InputFile, LifetimeDistribution, PvDistribution, ReportData, ResidualMap,
+    RunInfo, StandardFormula, YearValue,
+};
+
+use crate::error::Result;
+
+/// Renders the report as one self-contained HTML page.
+pub fn render(data: &ReportData) -> Result<String> {
+    html::page(data)
+}
+
+/// Renders the report and writes it to `path` atomically.
+pub fn write(path: impl AsRef<Path>, data: &ReportData) -> Result<()> {
+    let page = render(data)?;
+    crate::io::atomic::write_bytes(path, page.as_bytes())
+}

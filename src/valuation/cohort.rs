@@ -1,0 +1,138 @@
+//! Cohorts: the lives that share one survival curve in every scenario.
+//!
+//! Lives of one sex and age with the same mortality multiplier follow the same cohort
+//! diagonal q(x + k, V + k), so the curve is built once per cohort and scenario and shared
+//! by every policy in it; the inner loop over policies never touches the rate surface.
+
+use crate::data::Sex;
+
+/// One scenario's projected one-year rates of one sex: calendar years × ages, row-major by
+/// year, every age from `first_age` to the model's `max_age`.
+#[derive(Debug, Clone, Copy)]
+pub struct RateSurface<'a> {
+    /// Calendar year of row 0.
+    pub first_year: i32,
+    /// Age of column 0.
+    pub first_age: i32,
+    /// Ages per row (`max_age − first_age + 1`).
+    pub ages: usize,
+    /// The rates.
+    pub q: &'a [f64],
+}
+
+impl RateSurface<'_> {
+    /// Number of calendar years held.
+    pub fn years(&self) -> usize {
+        self.q.len() / self.ages
+    }
+
+    /// Last age held (q is 1 there).
+    pub fn max_age(&self) -> i32 {
+        self.first_age + self.ages as i32 - 1
+    }
+
+    /// Last calendar year held.
+    pub fn last_year(&self) -> i32 {
+        self.first_year + self.years() as i32 - 1
+    }
+
+    /// q(age, year); both must be held.
+    #[inline]
+    pub fn q(&self, age: i32, year: i32) -> f64 {
+        let row = (year - self.first_year) as usize;
+        let col = (age - self.first_age) as usize;
+        self.q[row * self.ages + col]
+    }
+}
+
+/// Lives of one sex aged `age` at the valuation date with one mortality multiplier.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Cohort {
+    /// Sex.
+    pub sex: Sex,
+    /// Age last birthday at the valuation date.
+    pub age: i32,
+    /// Policy-level multiplier of the population q (the book's own level).
+    pub factor: f64,
+}
+
+/// Multipliers of the population q by sex and attained age (from `[valuation]`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct LevelAdjustment {
+    /// First attained age covered.
+    pub first_age: i32,
+    /// Multiplier by sex (index 0 F, 1 M) and attained age from `first_age`.
+    pub factors: [Vec<f64>; 2],
+}
+
+impl LevelAdjustment {
+    /// No adjustment: every factor 1 for ages `first_age ..= max_age`.
+    pub fn none(first_age: i32, max_age: i32) -> Self {
+        let n = (max_age - first_age + 1).max(0) as usize;
+        LevelAdjustment {
+            first_age,
+            factors: [vec![1.0; n], vec![1.0; n]],
+        }
+    }
+
+    /// Sets the multiplier for `sex` at attained ages `from ..= to` (clipped to the range).
+    pub fn set(&mut self, sex: Sex, from: i32, to: i32, factor: f64) {
+        let row = &mut self.factors[sex_index(sex)];
+        for age in from.max(self.first_age)..=to {
+            if let Some(slot) = row.get_mut((age - self.first_age) as usize) {
+                *slot = factor;
+            }
+        }
+    }
+
+    /// The multiplier for `sex` at attained age `age` (1 outside the range).
+    #[inline]
+    pub fn factor(&self, sex: Sex, age: i32) -> f64 {
+        self.factors[sex_index(sex)]
+            .get((age - self.first_age) as usize)
+            .copied()
+            .unwrap_or(1.0)
+    }
+}
+
+/// Row of a sex in per-sex arrays.
+#[inline]
+pub fn sex_index(sex: Sex) -> usize {
+    match sex {
+        Sex::F => 0,
+        Sex::M => 1,
+    }
+}
+
+/// Fills `q` and `survival` with the cohort diagonal from the valuation year: `q[k] =
+/// min(1, scale × level × factor × q(age + k, year + k))` for k up to `max_age − age` (q is 1 at
+/// `max_age`), and `survival[k] = k p x` for k up to `q.len()`. Returns the number of years.
+pub fn cohort_curve(
+    cohort: &Cohort,
+    surface: &RateSurface<'_>,
+    year: i32,
+    level: &LevelAdjustment,
+    scale: f64,
+    q: &mut Vec<f64>,
+    survival: &mut Vec<f64>,
+) -> usize {
+    let max_age = surface.max_age();
+    let years = (max_age - cohort.age + 1) as usize;
+    q.clear();
+    survival.clear();
+    survival.push(1.0);
+    let mut alive = 1.0;
+    for k in 0..years {
+        let age = cohort.age + k as i32;
+        let rate = if age >= max_age {
+            1.0
+        } else {
+            let base = surface.q(age, year + k as i32);
+            (base * scale * cohort.factor * level.factor(cohort.sex, age)).min(1.0)
+        };
+        q.push(rate);
+        alive *= 1.0 - rate;
+        survival.push(alive);
+    }
+    years
+}
