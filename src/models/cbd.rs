@@ -4,7 +4,9 @@
 //! deaths on initial exposure E0 = Ec + D/2 (common practice), fitted by Newton–Raphson
 //! (for the canonical logit link this is the same as iteratively reweighted least
 //! squares). x̄ is the mean of the fitted ages, so k1 is the level at the centre of the
-//! age range and k2 the slope.
+//! age range and k2 the slope. Above the top fitted age the table is closed by the
+//! Kannisto law fitted to the model's own top rates, as for every model, rather than by
+//! extending the logit-linear age pattern.
 
 use nalgebra::DMatrix;
 
