@@ -296,7 +296,7 @@ fn rates_leaving_the_unit_interval_stop_the_run_and_leave_no_files() {
     let dir = tempfile::tempdir().unwrap();
     // A CBD level falling 12 a year underflows q to 0 within the horizon.
     let mut fits = cbd_pair(AGES, 120);
-    for (_, m) in fits.iter_mut() {
+    for (sex, m) in fits.iter_mut() {
         let k = m.factors().clone();
         let steep = nalgebra::DMatrix::from_fn(2, k.ncols(), |i, t| {
             if i == 0 {
@@ -306,6 +306,7 @@ fn rates_leaving_the_unit_interval_stop_the_run_and_leave_no_files() {
             }
         });
         *m = Box::new(projection_support::FakeCbd {
+            sex: *sex,
             ages: AGES,
             years: projection_support::YEARS,
             max_age: 120,

@@ -190,7 +190,7 @@ fn drift_uncertainty_adds_h_squared_term() {
     )
     .unwrap();
     let b = p.basis();
-    let n = b.walk().differences as f64;
+    let n = b.walk().steps as f64;
     let xs = sample(&p, &[horizon]).remove(0);
     let hh = horizon as f64;
     for i in 0..2 {
@@ -213,4 +213,21 @@ fn drift_uncertainty_adds_h_squared_term() {
             var * (2.0 / (N - 1) as f64).sqrt(),
         );
     }
+}
+
+#[test]
+fn joint_estimator_cross_covariance_by_hand() {
+    // Two indices over four years; first differences (1, 3, 2) and (−1, 0, −2): drifts 2
+    // and −1, deviations (−1, 1, 0) and (0, 1, −1), so with divisor T − 2 = 2 both
+    // variances are 1 and the covariance is 1/2 (hand computation of the usual
+    // estimators); the Cholesky factor of [[1, ½], [½, 1]] has L21 = ½, L22 = √3/2.
+    let h = nalgebra::DMatrix::from_row_slice(2, 4, &[0.0, 1.0, 4.0, 6.0, 5.0, 4.0, 4.0, 2.0]);
+    let w = tailspan::projection::RandomWalk::estimate(&h).unwrap();
+    assert_eq!(w.steps, 3);
+    assert!((w.drift[0] - 2.0).abs() < 1e-15 && (w.drift[1] + 1.0).abs() < 1e-15);
+    assert!((w.covariance[(0, 0)] - 1.0).abs() < 1e-15);
+    assert!((w.covariance[(1, 1)] - 1.0).abs() < 1e-15);
+    assert!((w.covariance[(0, 1)] - 0.5).abs() < 1e-15);
+    assert!((w.cholesky[(1, 0)] - 0.5).abs() < 1e-15);
+    assert!((w.cholesky[(1, 1)] - 0.75f64.sqrt()).abs() < 1e-15);
 }

@@ -9,6 +9,7 @@ use crate::error::Result;
 
 pub mod check;
 pub mod fit;
+pub mod project;
 pub mod synth;
 pub mod table;
 
@@ -35,6 +36,8 @@ pub enum Command {
     Table(table::TableArgs),
     /// Fit the configured model(s); write fit.json and residuals.
     Fit(fit::FitArgs),
+    /// Fit the first configured model to each sex and write scenario paths to Parquet.
+    Project(project::ProjectArgs),
 }
 
 /// Runs the parsed command line.
@@ -44,5 +47,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Check(args) => check::run(&args),
         Command::Table(args) => table::run(&args),
         Command::Fit(args) => fit::run(&args, cli.quiet),
+        Command::Project(args) => project::run(&args, cli.quiet),
     }
 }

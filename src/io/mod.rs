@@ -1,6 +1,8 @@
 //! Output: atomic writers for JSON, CSV and Parquet, the report and its charts.
 
 pub mod atomic;
+pub mod parquet;
 pub mod report;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};
+pub use parquet::ParquetSink;

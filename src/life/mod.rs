@@ -7,6 +7,7 @@
 //! and expectations, fractional ages, annuities) so each can be read and tested alone.
 
 pub mod annuity;
+pub mod closure;
 pub mod fractional;
 pub mod laws;
 pub mod table;

@@ -8,7 +8,19 @@
 use nalgebra::DMatrix;
 use serde::Serialize;
 
-use crate::data::{Population, Span};
+use crate::data::{Population, Sex, Span};
+
+pub mod cbd;
+pub mod lee_carter;
+pub mod likelihood;
+pub mod select;
+
+pub use cbd::{Cbd, CbdFit, CbdParams};
+pub use lee_carter::{LeeCarter, LeeCarterFit, LeeCarterMethod, LeeCarterParams};
+pub use select::{
+    FitDocument, FitRecord, FitSet, ModelFit, RankEntry, TimeSeriesRecord, build_model,
+    fit_population,
+};
 
 /// Goodness-of-fit measures every fit reports.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -19,7 +31,7 @@ pub struct FitDiagnostics {
     pub deviance: f64,
     /// Effective number of parameters (after identifiability constraints).
     pub parameters: usize,
-    /// Number of cells fitted.
+    /// Number of cells fitted (cells with positive exposure).
     pub observations: usize,
     /// Akaike information criterion: 2 ν − 2 ℓ.
     pub aic: f64,
@@ -33,6 +45,12 @@ pub struct FitDiagnostics {
 pub trait FittedModel: Send + Sync {
     /// Model name as written in files (`lee-carter`, `cbd`).
     fn name(&self) -> &'static str;
+
+    /// Estimation method as written in files (`svd`, `poisson`, `binomial`).
+    fn method(&self) -> &'static str;
+
+    /// Sex of the population fitted.
+    fn sex(&self) -> Sex;
 
     /// The population's fitted ages.
     fn ages(&self) -> Span;
@@ -57,7 +75,7 @@ pub trait FittedModel: Send + Sync {
     /// Fit quality.
     fn diagnostics(&self) -> &FitDiagnostics;
 
-    /// Deviance residuals, ages × years.
+    /// Deviance residuals, ages × years (NaN where the exposure is zero).
     fn residuals(&self) -> DMatrix<f64>;
 
     /// Fitted parameters by name, as written to `fit.json`.

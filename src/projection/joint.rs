@@ -10,59 +10,11 @@ use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
 
+use crate::projection::random_walk::RandomWalk;
+
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::models::FittedModel;
-
-/// A multivariate random walk with drift, k_t = k_{t−1} + d + ε_t with ε_t ~ N(0, Σ),
-/// estimated from a history of indices.
-#[derive(Debug, Clone, PartialEq)]
-pub struct WalkEstimate {
-    /// Estimated drift d̂: the mean first difference, (k_T − k_1)/(T − 1).
-    pub drift: DVector<f64>,
-    /// Estimated innovation covariance Σ̂ (divisor T − 2, unbiased).
-    pub covariance: DMatrix<f64>,
-    /// Number of first differences, T − 1; Var(d̂) = Σ / (T − 1).
-    pub differences: usize,
-}
-
-/// Estimates a random walk with drift from `history` (one row per index, one column per year).
-///
-/// The drift is the mean of the first differences and the covariance their sample
-/// covariance (the usual estimators of a random walk with drift, as in Lee & Carter 1992).
-/// Needs at least three years so that the covariance has a degree of freedom.
-pub fn estimate_walk(history: &DMatrix<f64>) -> Result<WalkEstimate> {
-    let (dims, years) = history.shape();
-    if years < 3 {
-        return Err(Error::model(
-            "random-walk",
-            format!("needs at least 3 years of fitted indices, found {years}"),
-        ));
-    }
-    let n = years - 1;
-    let diffs = DMatrix::from_fn(dims, n, |i, t| history[(i, t + 1)] - history[(i, t)]);
-    let drift = DVector::from_fn(dims, |i, _| diffs.row(i).sum() / n as f64);
-    let mut covariance = DMatrix::zeros(dims, dims);
-    for t in 0..n {
-        let e = diffs.column(t) - &drift;
-        covariance += &e * e.transpose();
-    }
-    covariance /= (n - 1) as f64;
-    if drift
-        .iter()
-        .chain(covariance.iter())
-        .any(|v| !v.is_finite())
-    {
-        return Err(Error::Numerical(
-            "the fitted period indices contain non-finite values; the random walk cannot be estimated".into(),
-        ));
-    }
-    Ok(WalkEstimate {
-        drift,
-        covariance,
-        differences: n,
-    })
-}
 
 /// One consistent projection basis: a fitted model per sex and the joint random walk of
 /// their stacked indices.
@@ -71,8 +23,7 @@ pub struct JointBasis {
     models: Vec<Arc<dyn FittedModel>>,
     offsets: Vec<usize>,
     last: DVector<f64>,
-    walk: WalkEstimate,
-    cholesky: DMatrix<f64>,
+    walk: RandomWalk,
 }
 
 impl std::fmt::Debug for JointBasis {
@@ -142,23 +93,9 @@ impl JointBasis {
             let f = model.factors();
             history.view_mut((offset, 0), f.shape()).copy_from(f);
         }
-        let walk = estimate_walk(&history)?;
-        let names = stacked_names(&fits);
-        let cholesky = match walk.covariance.clone().cholesky() {
-            Some(c) => c.l(),
-            None => {
-                return Err(Error::model(
-                    first.name(),
-                    format!(
-                        "the innovation covariance of the stacked indices [{}] is not positive definite \
-                         (an index that never moves, or more indices than the {} years can support); \
-                         fit more years or fewer sexes",
-                        names.join(", "),
-                        years.len()
-                    ),
-                ));
-            }
-        };
+        // A singular covariance (indices moving in lock-step) is factored with zero
+        // columns by the estimator, so such a history still projects.
+        let walk = RandomWalk::estimate(&history)?;
         let last = history.column(years.len() - 1).into_owned();
         let (sexes, models) = fits.into_iter().unzip();
         Ok(JointBasis {
@@ -167,7 +104,6 @@ impl JointBasis {
             offsets,
             last,
             walk,
-            cholesky,
         })
     }
 
@@ -202,13 +138,13 @@ impl JointBasis {
     }
 
     /// The joint random-walk estimate.
-    pub fn walk(&self) -> &WalkEstimate {
+    pub fn walk(&self) -> &RandomWalk {
         &self.walk
     }
 
     /// Lower Cholesky factor L of the innovation covariance, L Lᵀ = Σ̂.
     pub fn cholesky(&self) -> &DMatrix<f64> {
-        &self.cholesky
+        &self.walk.cholesky
     }
 
     /// The fitted years.
@@ -239,36 +175,5 @@ impl JointBasis {
             names.extend(model.factor_names().iter().map(|n| format!("{n}_{sex}")));
         }
         names
-    }
-}
-
-fn stacked_names(fits: &[(Sex, Arc<dyn FittedModel>)]) -> Vec<String> {
-    fits.iter()
-        .flat_map(|(sex, m)| m.factor_names().iter().map(move |n| format!("{n}_{sex}")))
-        .collect()
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn drift_is_mean_difference_and_covariance_is_unbiased() {
-        // Two indices over four years; differences (1, 3, 2) and (−1, 0, −2).
-        let h = DMatrix::from_row_slice(2, 4, &[0.0, 1.0, 4.0, 6.0, 5.0, 4.0, 4.0, 2.0]);
-        let w = estimate_walk(&h).unwrap();
-        assert_eq!(w.differences, 3);
-        assert!((w.drift[0] - 2.0).abs() < 1e-15);
-        assert!((w.drift[1] + 1.0).abs() < 1e-15);
-        // Deviations (−1, 1, 0) and (0, 1, −1): variances 2/2 = 1 and 1, covariance 1/2.
-        assert!((w.covariance[(0, 0)] - 1.0).abs() < 1e-15);
-        assert!((w.covariance[(1, 1)] - 1.0).abs() < 1e-15);
-        assert!((w.covariance[(0, 1)] - 0.5).abs() < 1e-15);
-    }
-
-    #[test]
-    fn two_years_are_too_few() {
-        let h = DMatrix::from_row_slice(1, 2, &[0.0, 1.0]);
-        assert!(estimate_walk(&h).is_err());
     }
 }

@@ -47,7 +47,7 @@ pub struct BootstrapSource {
 pub fn drawn_drift(basis: &JointBasis, seed: u64, scenario: u64) -> DVector<f64> {
     let mut rng = stream(seed, scenario, Purpose::Drift);
     let z = DVector::from_fn(basis.dims(), |_, _| rng.sample::<f64, _>(StandardNormal));
-    let scale = (basis.walk().differences as f64).sqrt().recip();
+    let scale = (basis.walk().steps as f64).sqrt().recip();
     &basis.walk().drift + basis.cholesky() * z * scale
 }
 

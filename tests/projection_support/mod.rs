@@ -26,6 +26,7 @@ pub fn diagnostics() -> FitDiagnostics {
 /// log m(x, t) = a_x + b_x k_t at the fitted ages; above them log m rises by 0.1 a year
 /// of age from the top fitted age; q = 1 − exp(−m) and q = 1 at `max_age`.
 pub struct FakeLogRate {
+    pub sex: Sex,
     pub ages: Span,
     pub years: Span,
     pub max_age: i32,
@@ -38,6 +39,12 @@ pub struct FakeLogRate {
 impl FittedModel for FakeLogRate {
     fn name(&self) -> &'static str {
         "lee-carter"
+    }
+    fn method(&self) -> &'static str {
+        "fixed"
+    }
+    fn sex(&self) -> Sex {
+        self.sex
     }
     fn ages(&self) -> Span {
         self.ages
@@ -80,6 +87,7 @@ impl FittedModel for FakeLogRate {
 
 /// logit q(x, t) = k1_t + (x − x̄) k2_t at every age below `max_age`, q = 1 there.
 pub struct FakeCbd {
+    pub sex: Sex,
     pub ages: Span,
     pub years: Span,
     pub max_age: i32,
@@ -96,6 +104,12 @@ impl FakeCbd {
 impl FittedModel for FakeCbd {
     fn name(&self) -> &'static str {
         "cbd"
+    }
+    fn method(&self) -> &'static str {
+        "fixed"
+    }
+    fn sex(&self) -> Sex {
+        self.sex
     }
     fn ages(&self) -> Span {
         self.ages
@@ -177,8 +191,9 @@ pub const AGES: Span = Span {
 pub fn log_rate_pair(max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
     let [kf, km] = histories(11, YEARS.len(), &[5.0], &[-1.2], &[0.9], 0.8);
     let n = AGES.len();
-    let make = |k: DMatrix<f64>, shift: f64| -> Box<dyn FittedModel> {
+    let make = |sex: Sex, k: DMatrix<f64>, shift: f64| -> Box<dyn FittedModel> {
         Box::new(FakeLogRate {
+            sex,
             ages: AGES,
             years: YEARS,
             max_age,
@@ -188,7 +203,10 @@ pub fn log_rate_pair(max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
             diag: diagnostics(),
         })
     };
-    vec![(Sex::F, make(kf, -0.3)), (Sex::M, make(km, 0.0))]
+    vec![
+        (Sex::F, make(Sex::F, kf, -0.3)),
+        (Sex::M, make(Sex::M, km, 0.0)),
+    ]
 }
 
 /// A two-sex CBD-like pair of fitted models.
@@ -201,8 +219,9 @@ pub fn cbd_pair(ages: Span, max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
         &[0.04, 0.0015],
         0.7,
     );
-    let make = |k: DMatrix<f64>| -> Box<dyn FittedModel> {
+    let make = |sex: Sex, k: DMatrix<f64>| -> Box<dyn FittedModel> {
         Box::new(FakeCbd {
+            sex,
             ages,
             years: YEARS,
             max_age,
@@ -210,7 +229,7 @@ pub fn cbd_pair(ages: Span, max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
             diag: diagnostics(),
         })
     };
-    vec![(Sex::F, make(kf)), (Sex::M, make(km))]
+    vec![(Sex::F, make(Sex::F, kf)), (Sex::M, make(Sex::M, km))]
 }
 
 /// Fits [`FakeCbd`] year by year: least squares of the empirical logit of D / E0 on x − x̄.
@@ -238,6 +257,7 @@ impl MortalityModel for FakeCbdSpec {
             kt[(1, t)] = sxy / sxx;
         }
         Ok(Box::new(FakeCbd {
+            sex: population.sex,
             ages,
             years: population.years,
             max_age: self.max_age,

@@ -1,0 +1,117 @@
+//! `tailspan project`: fit the first configured model to each sex and write scenario paths.
+
+use std::io::{IsTerminal, Write as _};
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+
+use crate::data::{Config, Experience, Sex};
+use crate::error::{Error, Result};
+use crate::models::{FittedModel, MortalityModel, build_model};
+use crate::projection::{
+    BootstrapSource, OutputOptions, Projector, Settings, Shard, Uncertainty, Written,
+    engine::ROW_GROUP_ROWS, scenario_ids, write_projection,
+};
+
+/// Arguments of `tailspan project`.
+#[derive(Debug, clap::Args)]
+pub struct ProjectArgs {
+    /// The run configuration (TOML).
+    pub config: PathBuf,
+    /// Write only shard K of N (a contiguous block of scenarios), e.g. `2/8`, to
+    /// `part-K-of-N` files.
+    #[arg(long, value_name = "K/N")]
+    pub shard: Option<String>,
+}
+
+/// Runs `tailspan project`: loads the config and experience, fits the first configured
+/// model kind to each sex, generates the scenarios and writes `paths.parquet`,
+/// `factors.parquet` and `period.parquet` to the output folder.
+pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
+    let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
+    let config = Config::load(&args.config)?;
+    let experience = Experience::from_config(&config)?;
+    let kind = config.model.kinds()[0];
+    let mut fits: Vec<(Sex, Box<dyn FittedModel>)> = Vec::new();
+    let mut specs: Vec<Arc<dyn MortalityModel>> = Vec::new();
+    for population in &experience.populations {
+        let spec: Arc<dyn MortalityModel> = Arc::from(build_model(&config.model, kind)?);
+        fits.push((population.sex, spec.fit(population)?));
+        specs.push(spec);
+    }
+    let settings = Settings::from_config(&config.projection);
+    let source =
+        matches!(settings.uncertainty, Uncertainty::Bootstrap { .. }).then(|| BootstrapSource {
+            models: specs,
+            populations: experience.populations.clone(),
+        });
+    let mut projector = Projector::new(fits, settings, source)?;
+    let options = OutputOptions {
+        folder: config.output_folder(),
+        paths: config.output.paths,
+        compression: config.output.compression,
+        shard,
+        row_group_rows: ROW_GROUP_ROWS,
+    };
+    let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
+    let total = match shard {
+        Some(s) => s.range(ids.clone())?,
+        None => ids.clone(),
+    };
+    let bar = Progress::new(total.end - total.start, quiet);
+    let written = write_projection(&mut projector, ids, &options, &|n| bar.advance(n))?;
+    bar.finish();
+    report(&written, kind.name())
+}
+
+/// A progress bar on standard error that appears only once a run has taken about a
+/// second, and never with `--quiet` or when standard error is not a terminal.
+struct Progress {
+    bar: ProgressBar,
+    start: Instant,
+    allowed: bool,
+}
+
+impl Progress {
+    fn new(scenarios: u64, quiet: bool) -> Progress {
+        let bar = ProgressBar::with_draw_target(Some(scenarios), ProgressDrawTarget::hidden());
+        if let Ok(style) = ProgressStyle::with_template(
+            "projecting {bar:40} {pos}/{len} scenarios, {elapsed} elapsed, about {eta} left",
+        ) {
+            bar.set_style(style);
+        }
+        Progress {
+            bar,
+            start: Instant::now(),
+            allowed: !quiet && std::io::stderr().is_terminal(),
+        }
+    }
+
+    fn advance(&self, scenarios: u64) {
+        self.bar.inc(scenarios);
+        if self.allowed && self.bar.is_hidden() && self.start.elapsed() > Duration::from_secs(1) {
+            self.bar.set_draw_target(ProgressDrawTarget::stderr());
+        }
+    }
+
+    fn finish(&self) {
+        self.bar.finish_and_clear();
+    }
+}
+
+fn report(written: &Written, model: &str) -> Result<()> {
+    let mut out = std::io::stdout().lock();
+    let mut text = format!(
+        "projected {model}: scenarios {}..={}\n",
+        written.scenarios.start,
+        written.scenarios.end.saturating_sub(1)
+    );
+    for file in &written.files {
+        text.push_str(&format!("wrote {}\n", file.display()));
+    }
+    out.write_all(text.as_bytes())
+        .and_then(|()| out.flush())
+        .map_err(|e| Error::io("standard output", e))
+}

@@ -1,0 +1,633 @@
+//! Lee–Carter: log m(x, t) = a_x + b_x k_t, with Σ b_x = 1 and Σ k_t = 0.
+//!
+//! Two estimators. The SVD fit (Lee & Carter 1992) is closed form but needs a log rate in
+//! every cell; the optional second stage re-estimates k_t so that fitted deaths equal
+//! observed deaths year by year. The Poisson fit (Brouhns, Denuit & Vermunt 2002) treats
+//! D(x, t) ~ Poisson(E(x, t) m(x, t)), so zero-death cells are ordinary data and
+//! zero-exposure cells simply carry no weight; it cycles one-dimensional Newton updates of
+//! a, k and b. The grid is held column-major (ages contiguous within a year) and the
+//! iteration works over preallocated slices, so a fit does no allocation per iteration.
+
+use nalgebra::{DMatrix, DVector};
+
+use crate::data::{Population, Sex, Span};
+use crate::error::{Error, Result};
+use crate::life::closure::KannistoClosure;
+use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
+use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
+
+const NAME: &str = "lee-carter";
+
+/// (a_x, b_x, k_t).
+type Parameters = (DVector<f64>, DVector<f64>, DVector<f64>);
+
+/// How the Lee–Carter parameters are estimated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum LeeCarterMethod {
+    /// Leading singular vectors of the centred log-rate matrix (Lee & Carter 1992).
+    Svd,
+    /// Poisson maximum likelihood (Brouhns, Denuit & Vermunt 2002).
+    Poisson,
+}
+
+impl LeeCarterMethod {
+    /// The name used in files.
+    pub fn name(self) -> &'static str {
+        match self {
+            LeeCarterMethod::Svd => "svd",
+            LeeCarterMethod::Poisson => "poisson",
+        }
+    }
+}
+
+/// Unchecked Lee–Carter settings.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LeeCarterParams {
+    /// Estimator.
+    pub method: LeeCarterMethod,
+    /// SVD only: re-estimate k_t so fitted deaths match observed deaths each year.
+    pub refit_kt: bool,
+    /// Top fitted ages the Kannisto closure is fitted to.
+    pub closure_fit_ages: usize,
+    /// Highest age of the closed table.
+    pub max_age: i32,
+    /// Convergence tolerance on the change in log-likelihood per cycle.
+    pub tolerance: f64,
+    /// Iteration cap; reaching it without convergence is an error.
+    pub max_iterations: usize,
+}
+
+/// Checked Lee–Carter settings, ready to fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LeeCarter {
+    params: LeeCarterParams,
+}
+
+/// A fitted Lee–Carter model for one population.
+#[derive(Debug, Clone)]
+pub struct LeeCarterFit {
+    sex: Sex,
+    ages: Span,
+    years: Span,
+    method: LeeCarterMethod,
+    /// Age pattern a_x (mean log rate).
+    pub ax: DVector<f64>,
+    /// Age sensitivity b_x, Σ b_x = 1.
+    pub bx: DVector<f64>,
+    /// Period index k_t as a 1 × years matrix, Σ k_t = 0.
+    pub kt: DMatrix<f64>,
+    closure: KannistoClosure,
+    diagnostics: FitDiagnostics,
+    residuals: DMatrix<f64>,
+}
+
+impl LeeCarterParams {
+    /// Checks the settings that do not depend on the data.
+    pub fn check(self) -> Result<LeeCarter> {
+        if !(self.tolerance.is_finite() && self.tolerance > 0.0) {
+            return Err(Error::model(
+                NAME,
+                format!("tolerance must be positive, found {}", self.tolerance),
+            ));
+        }
+        if self.max_iterations == 0 {
+            return Err(Error::model(NAME, "max_iterations must be at least 1"));
+        }
+        if self.closure_fit_ages < 2 {
+            return Err(Error::model(
+                NAME,
+                "the closure needs at least two fitted ages (closure_fit_ages)",
+            ));
+        }
+        if self.refit_kt && self.method == LeeCarterMethod::Poisson {
+            return Err(Error::model(
+                NAME,
+                "refit_kt is a second stage of the SVD fit; the Poisson fit already matches deaths",
+            ));
+        }
+        Ok(LeeCarter { params: self })
+    }
+}
+
+impl MortalityModel for LeeCarter {
+    fn fit(&self, population: &Population) -> Result<Box<dyn FittedModel>> {
+        Ok(Box::new(self.fit_population(population)?))
+    }
+}
+
+impl LeeCarter {
+    /// The checked settings.
+    pub fn params(&self) -> &LeeCarterParams {
+        &self.params
+    }
+
+    /// Fits one population.
+    pub fn fit_population(&self, population: &Population) -> Result<LeeCarterFit> {
+        let p = &self.params;
+        let ages = population.ages;
+        if ages.len() < 2 || population.years.len() < 2 {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "sex {}: needs at least two ages and two years, found {} and {}",
+                    population.sex,
+                    ages.len(),
+                    population.years.len()
+                ),
+            ));
+        }
+        if p.max_age <= ages.last {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "max_age {} must be above the top fitted age {}",
+                    p.max_age, ages.last
+                ),
+            ));
+        }
+        if p.closure_fit_ages > ages.len() {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "closure_fit_ages {} exceeds the {} fitted ages",
+                    p.closure_fit_ages,
+                    ages.len()
+                ),
+            ));
+        }
+        let (ax, bx, kt, iterations) = match p.method {
+            LeeCarterMethod::Svd => {
+                let log_rates = observed_log_rates(population)?;
+                let (ax, bx, mut kt) = svd_fit(&log_rates)?;
+                let mut ax = ax;
+                let iterations = if p.refit_kt {
+                    refit_period_index(population, &mut ax, &bx, &mut kt, p.max_iterations)?
+                } else {
+                    0
+                };
+                (ax, bx, kt, iterations)
+            }
+            LeeCarterMethod::Poisson => {
+                let ((ax, bx, kt), cycles) =
+                    poisson_fit(population, p.tolerance, p.max_iterations)?;
+                (ax, bx, kt, cycles)
+            }
+        };
+        let mut fit = LeeCarterFit {
+            sex: population.sex,
+            ages,
+            years: population.years,
+            method: p.method,
+            ax,
+            bx,
+            kt: DMatrix::from_row_slice(1, kt.len(), kt.as_slice()),
+            closure: KannistoClosure {
+                fit_ages: p.closure_fit_ages,
+                max_age: p.max_age,
+            },
+            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
+            residuals: DMatrix::zeros(0, 0),
+        };
+        fit.measure(population, iterations)?;
+        Ok(fit)
+    }
+}
+
+impl LeeCarterFit {
+    /// Fitted central rate m(x, t) at row `i` (age) and column `j` (year).
+    pub fn central_rate(&self, i: usize, j: usize) -> f64 {
+        (self.ax[i] + self.bx[i] * self.kt[(0, j)]).exp()
+    }
+
+    /// The estimator used.
+    pub fn fit_method(&self) -> LeeCarterMethod {
+        self.method
+    }
+
+    /// Log-likelihood, deviance and residuals against the data.
+    fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
+        let (n_ages, n_years) = (self.ages.len(), self.years.len());
+        let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
+        let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
+        for j in 0..n_years {
+            for i in 0..n_ages {
+                let (d, e) = (population.deaths[(i, j)], population.exposure[(i, j)]);
+                if e <= 0.0 {
+                    continue;
+                }
+                let mean = e * self.central_rate(i, j);
+                let unit = poisson_deviance(d, mean);
+                ll += poisson_log_likelihood(d, mean);
+                dev += unit;
+                residuals[(i, j)] = deviance_residual(d, mean, unit);
+                cells += 1;
+            }
+        }
+        if !(ll.is_finite() && dev.is_finite()) {
+            return Err(Error::Numerical(format!(
+                "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
+                self.sex
+            )));
+        }
+        let count = 2 * n_ages + n_years - 2;
+        self.diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        self.residuals = residuals;
+        Ok(())
+    }
+}
+
+impl FittedModel for LeeCarterFit {
+    fn name(&self) -> &'static str {
+        NAME
+    }
+
+    fn method(&self) -> &'static str {
+        self.method.name()
+    }
+
+    fn sex(&self) -> Sex {
+        self.sex
+    }
+
+    fn ages(&self) -> Span {
+        self.ages
+    }
+
+    fn years(&self) -> Span {
+        self.years
+    }
+
+    fn factor_names(&self) -> &'static [&'static str] {
+        &["k"]
+    }
+
+    fn factors(&self) -> &DMatrix<f64> {
+        &self.kt
+    }
+
+    fn rates(&self, factors: &[f64], out: &mut [f64]) {
+        let k = factors[0];
+        let n = self.ax.len();
+        for ((m, a), b) in out[..n].iter_mut().zip(self.ax.iter()).zip(self.bx.iter()) {
+            *m = (a + b * k).exp();
+        }
+        self.closure.close(self.ages.first, n, out);
+    }
+
+    fn max_age(&self) -> i32 {
+        self.closure.max_age
+    }
+
+    fn diagnostics(&self) -> &FitDiagnostics {
+        &self.diagnostics
+    }
+
+    fn residuals(&self) -> DMatrix<f64> {
+        self.residuals.clone()
+    }
+
+    fn parameters_json(&self) -> serde_json::Value {
+        serde_json::json!({
+            "ax": self.ax.as_slice(),
+            "bx": self.bx.as_slice(),
+            "kt": self.kt.as_slice(),
+        })
+    }
+}
+
+/// log(D/E) in every cell, or an error naming the first cell where it is undefined.
+fn observed_log_rates(population: &Population) -> Result<DMatrix<f64>> {
+    let mut out = DMatrix::zeros(population.ages.len(), population.years.len());
+    for (j, year) in population.years.iter().enumerate() {
+        for (i, age) in population.ages.iter().enumerate() {
+            let (d, e) = (population.deaths[(i, j)], population.exposure[(i, j)]);
+            if e <= 0.0 || d <= 0.0 {
+                let what = if e <= 0.0 { "exposure" } else { "deaths" };
+                return Err(Error::model(
+                    NAME,
+                    format!(
+                        "sex {}, age {age}, year {year}: zero {what}, so the log death rate is \
+                         undefined and the SVD fit cannot be used; set `fit = \"poisson\"` in \
+                         [model], which handles cells with no deaths",
+                        population.sex
+                    ),
+                ));
+            }
+            out[(i, j)] = (d / e).ln();
+        }
+    }
+    Ok(out)
+}
+
+/// SVD fit of a complete log-rate matrix: (a, b, k) normalised to Σb = 1, Σk = 0.
+fn svd_fit(log_rates: &DMatrix<f64>) -> Result<Parameters> {
+    let n_years = log_rates.ncols();
+    let ax = log_rates.column_sum() / n_years as f64;
+    let mut centred = log_rates.clone();
+    for mut col in centred.column_iter_mut() {
+        col -= &ax;
+    }
+    let svd = centred.svd(true, true);
+    let (Some(u), Some(v_t)) = (svd.u.as_ref(), svd.v_t.as_ref()) else {
+        return Err(Error::Numerical(
+            "singular value decomposition failed".into(),
+        ));
+    };
+    let s1 = svd.singular_values[0];
+    let u1 = u.column(0);
+    let scale = u1.sum();
+    if s1.is_nan() || s1 <= 0.0 || scale.is_nan() || scale.abs() < 1e-8 * u1.norm() {
+        return Err(Error::model(
+            NAME,
+            "the leading age pattern of the centred log rates sums to zero, so it cannot be \
+             normalised to Σ b_x = 1 (no common trend across ages)",
+        ));
+    }
+    let bx = u1 / scale;
+    let kt = v_t.row(0).transpose() * (s1 * scale);
+    Ok((ax, bx, kt))
+}
+
+/// Second stage of Lee & Carter (1992): for each year, solve
+/// Σ_x E exp(a_x + b_x k) = Σ_x D for k by Newton's method, then re-centre k.
+fn refit_period_index(
+    population: &Population,
+    ax: &mut DVector<f64>,
+    bx: &DVector<f64>,
+    kt: &mut DVector<f64>,
+    max_iterations: usize,
+) -> Result<usize> {
+    let mut most = 0;
+    for (j, year) in population.years.iter().enumerate() {
+        let deaths: f64 = population.deaths.column(j).sum();
+        let exposure = population.exposure.column(j);
+        let mut k = kt[j];
+        let mut converged = false;
+        for it in 1..=max_iterations {
+            let (mut g, mut slope) = (-deaths, 0.0);
+            for i in 0..ax.len() {
+                let fitted = exposure[i] * (ax[i] + bx[i] * k).exp();
+                g += fitted;
+                slope += fitted * bx[i];
+            }
+            if slope.is_nan() || slope <= 0.0 {
+                break;
+            }
+            let step = g / slope;
+            k -= step;
+            if step.abs() <= 1e-12 * (1.0 + k.abs()) {
+                most = most.max(it);
+                converged = true;
+                break;
+            }
+        }
+        if !converged || !k.is_finite() {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "sex {}, year {year}: re-estimating k_t to match observed deaths did not \
+                     converge in {max_iterations} iterations (model.refit_kt)",
+                    population.sex
+                ),
+            ));
+        }
+        kt[j] = k;
+    }
+    let mean = kt.mean();
+    kt.add_scalar_mut(-mean);
+    *ax += bx * mean;
+    Ok(most)
+}
+
+/// Poisson maximum likelihood by cycled one-dimensional Newton steps in a, k, b
+/// (Brouhns, Denuit & Vermunt 2002, section 3). Returns (a, b, k, cycles).
+fn poisson_fit(
+    population: &Population,
+    tolerance: f64,
+    max_iterations: usize,
+) -> Result<(Parameters, usize)> {
+    require_information(population)?;
+    let (n_ages, n_years) = (population.ages.len(), population.years.len());
+    let (a0, b0, k0) = starting_values(population);
+    let mut ax: Vec<f64> = a0.iter().copied().collect();
+    let mut bx: Vec<f64> = b0.iter().copied().collect();
+    let mut kt: Vec<f64> = k0.iter().copied().collect();
+    let deaths = population.deaths.as_slice();
+    let exposure = population.exposure.as_slice();
+    let mut fitted = vec![0.0; n_ages * n_years];
+    let mut num = vec![0.0; n_ages];
+    let mut den = vec![0.0; n_ages];
+    let mut factor = vec![0.0; n_ages];
+    let crude_log: Vec<f64> = deaths
+        .iter()
+        .zip(exposure)
+        .map(|(d, e)| if *d > 0.0 { (d / e).ln() } else { 0.0 })
+        .collect();
+
+    // ℓ = ℓ_saturated − deviance/2, so the change in ℓ is minus the change in half the
+    // deviance; the deviance is a sum of small non-negative terms and keeps its precision
+    // where ℓ itself (large terms that cancel) would not.
+    let mut previous = refresh(&mut fitted, deaths, exposure, &crude_log, &ax, &bx, &kt);
+    for cycle in 1..=max_iterations {
+        // a_x: Newton step on each row, then scale each row's fitted deaths.
+        num.fill(0.0);
+        den.fill(0.0);
+        for (dcol, fcol) in deaths.chunks_exact(n_ages).zip(fitted.chunks_exact(n_ages)) {
+            for i in 0..n_ages {
+                num[i] += dcol[i] - fcol[i];
+                den[i] += fcol[i];
+            }
+        }
+        for i in 0..n_ages {
+            let step = num[i] / den[i];
+            ax[i] += step;
+            factor[i] = step.exp();
+        }
+        for fcol in fitted.chunks_exact_mut(n_ages) {
+            for (f, s) in fcol.iter_mut().zip(&factor) {
+                *f *= s;
+            }
+        }
+        // k_t: Newton step on each year, then refresh that year's fitted deaths.
+        for (j, k) in kt.iter_mut().enumerate() {
+            let range = j * n_ages..(j + 1) * n_ages;
+            let (dcol, ecol) = (&deaths[range.clone()], &exposure[range.clone()]);
+            let fcol = &mut fitted[range];
+            let (mut n, mut d) = (0.0, 0.0);
+            for i in 0..n_ages {
+                n += (dcol[i] - fcol[i]) * bx[i];
+                d += fcol[i] * bx[i] * bx[i];
+            }
+            *k += n / d;
+            for i in 0..n_ages {
+                fcol[i] = ecol[i] * (ax[i] + bx[i] * *k).exp();
+            }
+        }
+        // b_x: Newton step on each row, then refresh everything and the likelihood.
+        num.fill(0.0);
+        den.fill(0.0);
+        for ((dcol, fcol), k) in deaths
+            .chunks_exact(n_ages)
+            .zip(fitted.chunks_exact(n_ages))
+            .zip(&kt)
+        {
+            for i in 0..n_ages {
+                num[i] += (dcol[i] - fcol[i]) * k;
+                den[i] += fcol[i] * k * k;
+            }
+        }
+        for i in 0..n_ages {
+            bx[i] += num[i] / den[i];
+        }
+        let current = refresh(&mut fitted, deaths, exposure, &crude_log, &ax, &bx, &kt);
+        if !current.is_finite() {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "sex {}: the Poisson fit diverged (non-finite log-likelihood at cycle {cycle})",
+                    population.sex
+                ),
+            ));
+        }
+        if (current - previous).abs() < tolerance {
+            return Ok((normalise(ax, bx, kt)?, cycle));
+        }
+        previous = current;
+    }
+    Err(Error::model(
+        NAME,
+        format!(
+            "sex {}: the Poisson fit did not converge in {max_iterations} cycles (change in \
+             log-likelihood still above {tolerance:e}); raise model.max_iterations or \
+             model.tolerance",
+            population.sex
+        ),
+    ))
+}
+
+/// Recomputes every fitted death count and returns half the Poisson deviance,
+/// Σ [d (ln(d/E) − η) − (d − fitted)] over cells with positive exposure (zero-exposure
+/// cells fit zero deaths and add nothing).
+fn refresh(
+    fitted: &mut [f64],
+    deaths: &[f64],
+    exposure: &[f64],
+    crude_log: &[f64],
+    ax: &[f64],
+    bx: &[f64],
+    kt: &[f64],
+) -> f64 {
+    let n_ages = ax.len();
+    let mut half_deviance = 0.0;
+    for ((((fcol, dcol), ecol), lcol), k) in fitted
+        .chunks_exact_mut(n_ages)
+        .zip(deaths.chunks_exact(n_ages))
+        .zip(exposure.chunks_exact(n_ages))
+        .zip(crude_log.chunks_exact(n_ages))
+        .zip(kt)
+    {
+        for i in 0..n_ages {
+            let eta = ax[i] + bx[i] * k;
+            let f = ecol[i] * eta.exp();
+            fcol[i] = f;
+            half_deviance += dcol[i] * (lcol[i] - eta) - (dcol[i] - f);
+        }
+    }
+    half_deviance
+}
+
+/// Every age and every year needs some exposure and some deaths, or its parameter has no
+/// finite maximum-likelihood estimate.
+fn require_information(population: &Population) -> Result<()> {
+    let sex = population.sex;
+    for (i, age) in population.ages.iter().enumerate() {
+        let (d, e) = (
+            population.deaths.row(i).sum(),
+            population.exposure.row(i).sum(),
+        );
+        if !(d > 0.0 && e > 0.0) {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "sex {sex}, age {age}: no deaths or no exposure in any year, so a_x has no \
+                     finite estimate; narrow data.ages"
+                ),
+            ));
+        }
+    }
+    for (j, year) in population.years.iter().enumerate() {
+        let (d, e) = (
+            population.deaths.column(j).sum(),
+            population.exposure.column(j).sum(),
+        );
+        if !(d > 0.0 && e > 0.0) {
+            return Err(Error::model(
+                NAME,
+                format!(
+                    "sex {sex}, year {year}: no deaths or no exposure at any age, so k_t has no \
+                     finite estimate; narrow data.years"
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Starting values for the Poisson fit: the SVD fit when every cell has deaths; otherwise
+/// the SVD fit of log rates smoothed towards each age's pooled rate r_x,
+/// ln((D + r_x)/(E + 1)), which is finite even in zero cells; if neither has a usable age
+/// pattern, flat b_x with k_t from each year's pooled rate.
+fn starting_values(population: &Population) -> Parameters {
+    if let Ok(log_rates) = observed_log_rates(population)
+        && let Ok(start) = svd_fit(&log_rates)
+    {
+        return start;
+    }
+    let (n_ages, n_years) = (population.ages.len(), population.years.len());
+    let pooled: Vec<f64> = (0..n_ages)
+        .map(|i| population.deaths.row(i).sum() / population.exposure.row(i).sum())
+        .collect();
+    let smoothed = DMatrix::from_fn(n_ages, n_years, |i, j| {
+        ((population.deaths[(i, j)] + pooled[i]) / (population.exposure[(i, j)] + 1.0)).ln()
+    });
+    if let Ok((a, b, k)) = svd_fit(&smoothed)
+        && b.iter().all(|v| v.is_finite())
+        && k.iter().any(|v| *v != 0.0)
+    {
+        return (a, b, k);
+    }
+    let ax = DVector::from_iterator(n_ages, pooled.iter().map(|r| r.ln()));
+    let bx = DVector::from_element(n_ages, 1.0 / n_ages as f64);
+    let mut kt = DVector::from_fn(n_years, |j, _| {
+        let rate = population.deaths.column(j).sum() / population.exposure.column(j).sum();
+        rate.ln() * n_ages as f64
+    });
+    let mean = kt.mean();
+    kt.add_scalar_mut(-mean);
+    if kt.iter().all(|v| *v == 0.0) {
+        // Identical years: any non-zero k lets the b step move; the fit decides the rest.
+        kt = DVector::from_fn(n_years, |j, _| j as f64 - (n_years as f64 - 1.0) / 2.0);
+    }
+    (ax, bx, kt)
+}
+
+/// Applies Σ b = 1, Σ k = 0 without changing any fitted rate:
+/// k → c (k − k̄), b → b / c, a → a + b k̄ with c = Σ b.
+fn normalise(ax: Vec<f64>, bx: Vec<f64>, kt: Vec<f64>) -> Result<Parameters> {
+    let mut ax = DVector::from_vec(ax);
+    let mut bx = DVector::from_vec(bx);
+    let mut kt = DVector::from_vec(kt);
+    let mean = kt.mean();
+    ax += &bx * mean;
+    kt.add_scalar_mut(-mean);
+    let scale = bx.sum();
+    if scale.is_nan() || scale.abs() <= 1e-10 * bx.norm() {
+        return Err(Error::model(
+            NAME,
+            "the fitted b_x sum to zero, so they cannot be normalised to Σ b_x = 1",
+        ));
+    }
+    bx /= scale;
+    kt *= scale;
+    Ok((ax, bx, kt))
+}
