@@ -102,3 +102,32 @@ fn bad_shard_and_bad_key_exit_2_and_write_nothing() {
     assert!(err.contains("projection.bootstrap_samples"), "{err}");
     assert!(!dir.path().join("out").exists());
 }
+
+#[test]
+fn bootstrap_run_is_identical_on_one_and_two_threads() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = config(
+        dir.path(),
+        "lee-carter",
+        "scenarios = 5\nseed = 9\nhorizon = 6\nparameter_uncertainty = \"bootstrap\"\nbootstrap_samples = 3",
+    );
+    let mut files = Vec::new();
+    for threads in ["1", "2"] {
+        let out = Command::new(env!("CARGO_BIN_EXE_tailspan"))
+            .args(["project", cfg.to_str().unwrap(), "-q"])
+            .env("RAYON_NUM_THREADS", threads)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let folder = dir.path().join("out");
+        files.push(
+            ["paths", "factors", "period"]
+                .map(|f| std::fs::read(folder.join(format!("{f}.parquet"))).unwrap()),
+        );
+    }
+    assert!(files[0] == files[1], "bytes differ between 1 and 2 threads");
+}

@@ -138,6 +138,17 @@ pub struct RowGroupSink {
     writer: SerializedFileWriter<AtomicFile>,
 }
 
+/// How one column of a [`RowGroupSink`] is written.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ColumnLayout {
+    /// Column name.
+    pub name: String,
+    /// Parquet encoding of its values.
+    pub encoding: Encoding,
+    /// Keep min/max statistics per column chunk (worth it only where readers filter).
+    pub statistics: bool,
+}
+
 /// Encodes whole row groups for one [`RowGroupSink`]; shared by the workers.
 pub struct RowGroupEncoder {
     path: PathBuf,
@@ -152,22 +163,26 @@ pub struct EncodedRowGroup {
 
 impl RowGroupSink {
     /// Starts writing `path` with `schema`; `description` says what each column means and
-    /// `encodings` gives named columns an encoding (dictionaries are off: the columns
-    /// this writer is for are sorted keys and measured values, where a dictionary costs a
-    /// hash per row and saves little). Statistics are kept per column chunk.
+    /// `columns` how named columns are written (dictionaries are off: the columns this
+    /// writer is for are sorted keys and measured values, where a dictionary costs a hash
+    /// per row and saves little).
     pub fn create(
         path: impl AsRef<Path>,
         schema: SchemaRef,
         compression: Compression,
         description: &str,
-        encodings: &[(String, Encoding)],
+        columns: &[ColumnLayout],
     ) -> Result<(RowGroupSink, Arc<RowGroupEncoder>)> {
         let path = path.as_ref().to_path_buf();
         let mut props = base_properties(compression, description)
             .set_dictionary_enabled(false)
             .set_statistics_enabled(EnabledStatistics::Chunk);
-        for (name, encoding) in encodings {
-            props = props.set_column_encoding(ColumnPath::from(name.as_str()), *encoding);
+        for c in columns {
+            let column = ColumnPath::from(c.name.as_str());
+            props = props.set_column_encoding(column.clone(), c.encoding);
+            if !c.statistics {
+                props = props.set_column_statistics_enabled(column, EnabledStatistics::None);
+            }
         }
         let file = AtomicFile::create(&path)?;
         let (writer, factory) =

@@ -18,7 +18,7 @@ use parquet::basic::Encoding;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
-use crate::io::parquet::{EncodedRowGroup, RowGroupEncoder, RowGroupSink};
+use crate::io::parquet::{ColumnLayout, EncodedRowGroup, RowGroupEncoder, RowGroupSink};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
 
@@ -178,23 +178,29 @@ const PERIOD_DESCRIPTION: &str = "scenario: scenario number, 0 is the central pa
     sex: F or M; year: projected calendar year; \
     e65: period complete expectation of life at 65 from that year's rates, under UDD";
 
-/// Column encodings, chosen by measuring a 2,000-scenario CBD run (CPU time, zstd):
+/// Column layouts, chosen by measuring a 2,000-scenario CBD run (CPU time, zstd):
 /// dictionaries on the key columns cost a hash lookup per row, so the sorted integer keys
 /// are delta-encoded (runs of equal or consecutive values pack to a bit or two per row)
-/// and the sex and factor labels are written as length-delta strings (readable by pyarrow), which together cut
-/// the CPU time by about a fifth; byte-stream-split floats compress about 10 % smaller
-/// under zstd at no extra cost.
-fn column_encodings(schema: &Schema) -> Vec<(String, Encoding)> {
+/// and the sex and factor labels are written as length-delta strings (readable by
+/// pyarrow), which together cut the CPU time by about a fifth; byte-stream-split floats
+/// compress about 10 % smaller under zstd at no extra cost. Min/max statistics of the
+/// labels cost a string comparison per row and filter nothing (every row group holds
+/// every sex), so they are left out.
+fn column_layouts(schema: &Schema) -> Vec<ColumnLayout> {
     schema
         .fields()
         .iter()
         .map(|f| {
-            let encoding = match f.data_type() {
-                DataType::Float64 => Encoding::BYTE_STREAM_SPLIT,
-                DataType::Utf8 => Encoding::DELTA_LENGTH_BYTE_ARRAY,
-                _ => Encoding::DELTA_BINARY_PACKED,
+            let (encoding, statistics) = match f.data_type() {
+                DataType::Float64 => (Encoding::BYTE_STREAM_SPLIT, true),
+                DataType::Utf8 => (Encoding::DELTA_LENGTH_BYTE_ARRAY, false),
+                _ => (Encoding::DELTA_BINARY_PACKED, true),
             };
-            (f.name().clone(), encoding)
+            ColumnLayout {
+                name: f.name().clone(),
+                encoding,
+                statistics,
+            }
         })
         .collect()
 }
@@ -419,11 +425,11 @@ pub fn write_projection(
         ),
     ];
     for (slot, (wanted, stem, schema, description)) in plan.into_iter().enumerate() {
-        let encodings = column_encodings(&schema);
+        let layouts = column_layouts(&schema);
         if wanted {
             let path = options.file(stem);
             let (sink, encoder) =
-                RowGroupSink::create(&path, schema, options.compression, description, &encodings)?;
+                RowGroupSink::create(&path, schema, options.compression, description, &layouts)?;
             sinks[slot] = Some(sink);
             encoders[slot] = Some(encoder);
             files.push(path);
