@@ -1,10 +1,12 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
 
 pub mod cohort;
+pub mod driver;
 pub mod lifetimes;
 pub mod portfolio;
 pub mod schedule;
 
+pub use driver::{DriverSettings, ScenarioResult, value_scenarios};
 pub use cohort::{Cohort, LevelAdjustment, RateSurface};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
