@@ -114,6 +114,20 @@ fn files_hold_exactly_the_in_memory_scenarios() {
         );
         let paths = rows(&out.join("paths.parquet"));
         assert_eq!(paths.len() as u64, written.path_rows);
+        let reader =
+            SerializedFileReader::new(File::open(out.join("paths.parquet")).unwrap()).unwrap();
+        let metadata = reader
+            .metadata()
+            .file_metadata()
+            .key_value_metadata()
+            .unwrap();
+        assert!(metadata.iter().any(|kv| {
+            kv.key == "tailspan.schema"
+                && kv
+                    .value
+                    .as_deref()
+                    .is_some_and(|v| v.contains("central path"))
+        }));
         assert_eq!(paths.len(), (n + 1) * 2 * years.len() * ages.len());
         let mut buf = p.buffer();
         let mut row = paths.iter();

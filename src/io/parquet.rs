@@ -12,10 +12,15 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use ::parquet::arrow::ArrowWriter;
-use ::parquet::basic::{Compression as Codec, ZstdLevel};
+use ::parquet::arrow::arrow_writer::{
+    ArrowColumnChunk, ArrowRowGroupWriterFactory, compute_leaves,
+};
+use ::parquet::basic::{Compression as Codec, Encoding, ZstdLevel};
 use ::parquet::file::metadata::KeyValue;
-use ::parquet::file::properties::WriterProperties;
-use arrow_array::RecordBatch;
+use ::parquet::file::properties::{EnabledStatistics, WriterProperties, WriterPropertiesBuilder};
+use ::parquet::file::writer::SerializedFileWriter;
+use ::parquet::schema::types::ColumnPath;
+use arrow_array::{ArrayRef, RecordBatch};
 use arrow_schema::SchemaRef;
 
 use crate::data::config::Compression;
@@ -48,18 +53,8 @@ impl ParquetSink {
         rows_per_group: usize,
     ) -> Result<Self> {
         let path = path.as_ref().to_path_buf();
-        let codec = match compression {
-            Compression::Zstd => Codec::ZSTD(ZstdLevel::default()),
-            Compression::Snappy => Codec::SNAPPY,
-            Compression::None => Codec::UNCOMPRESSED,
-        };
-        let props = WriterProperties::builder()
-            .set_compression(codec)
+        let props = base_properties(compression, description)
             .set_max_row_group_row_count(Some(rows_per_group.max(1)))
-            .set_key_value_metadata(Some(vec![
-                KeyValue::new(SCHEMA_KEY.to_string(), description.to_string()),
-                KeyValue::new(VERSION_KEY.to_string(), crate::VERSION.to_string()),
-            ]))
             .build();
         let file = AtomicFile::create(&path)?;
         let writer =
@@ -115,6 +110,137 @@ pub fn write_batch(
     )?;
     sink.write(batch)?;
     sink.finish()
+}
+
+/// The codec and the metadata every tailspan Parquet file carries.
+fn base_properties(compression: Compression, description: &str) -> WriterPropertiesBuilder {
+    let codec = match compression {
+        Compression::Zstd => Codec::ZSTD(ZstdLevel::default()),
+        Compression::Snappy => Codec::SNAPPY,
+        Compression::None => Codec::UNCOMPRESSED,
+    };
+    WriterProperties::builder()
+        .set_compression(codec)
+        .set_key_value_metadata(Some(vec![
+            KeyValue::new(SCHEMA_KEY.to_string(), description.to_string()),
+            KeyValue::new(VERSION_KEY.to_string(), crate::VERSION.to_string()),
+        ]))
+}
+
+/// A Parquet file whose row groups are encoded and compressed elsewhere (on worker
+/// threads, see [`RowGroupEncoder`]) and appended here in order.
+///
+/// Encoding is most of the cost of a large output; done on the thread that produced the
+/// rows it runs on every core, while the file itself is written by one thread in a fixed
+/// order, so the bytes do not depend on the number of threads.
+pub struct RowGroupSink {
+    path: PathBuf,
+    writer: SerializedFileWriter<AtomicFile>,
+}
+
+/// Encodes whole row groups for one [`RowGroupSink`]; shared by the workers.
+pub struct RowGroupEncoder {
+    path: PathBuf,
+    schema: SchemaRef,
+    factory: ArrowRowGroupWriterFactory,
+}
+
+/// A row group encoded and compressed, ready to append.
+pub struct EncodedRowGroup {
+    chunks: Vec<ArrowColumnChunk>,
+}
+
+impl RowGroupSink {
+    /// Starts writing `path` with `schema`; `description` says what each column means and
+    /// `encodings` gives named columns an encoding (dictionaries are off: the columns
+    /// this writer is for are sorted keys and measured values, where a dictionary costs a
+    /// hash per row and saves little). Statistics are kept per column chunk.
+    pub fn create(
+        path: impl AsRef<Path>,
+        schema: SchemaRef,
+        compression: Compression,
+        description: &str,
+        encodings: &[(String, Encoding)],
+    ) -> Result<(RowGroupSink, Arc<RowGroupEncoder>)> {
+        let path = path.as_ref().to_path_buf();
+        let mut props = base_properties(compression, description)
+            .set_dictionary_enabled(false)
+            .set_statistics_enabled(EnabledStatistics::Chunk);
+        for (name, encoding) in encodings {
+            props = props.set_column_encoding(ColumnPath::from(name.as_str()), *encoding);
+        }
+        let file = AtomicFile::create(&path)?;
+        let (writer, factory) =
+            ArrowWriter::try_new(file, Arc::clone(&schema), Some(props.build()))
+                .and_then(ArrowWriter::into_serialized_writer)
+                .map_err(|e| parquet_error(&path, e))?;
+        let encoder = RowGroupEncoder {
+            path: path.clone(),
+            schema,
+            factory,
+        };
+        Ok((RowGroupSink { path, writer }, Arc::new(encoder)))
+    }
+
+    /// Appends a row group.
+    pub fn append(&mut self, group: EncodedRowGroup) -> Result<()> {
+        let path = &self.path;
+        let mut row_group = self
+            .writer
+            .next_row_group()
+            .map_err(|e| parquet_error(path, e))?;
+        for chunk in group.chunks {
+            chunk
+                .append_to_row_group(&mut row_group)
+                .map_err(|e| parquet_error(path, e))?;
+        }
+        row_group.close().map_err(|e| parquet_error(path, e))?;
+        Ok(())
+    }
+
+    /// Writes the footer but leaves the file under its temporary name, so that several
+    /// outputs can be completed first and then committed together.
+    pub fn close(self) -> Result<AtomicFile> {
+        self.writer
+            .into_inner()
+            .map_err(|e| parquet_error(&self.path, e))
+    }
+}
+
+impl RowGroupEncoder {
+    /// Encodes `columns` (one array per schema field, in order) as one row group.
+    pub fn encode(&self, columns: &[ArrayRef]) -> Result<EncodedRowGroup> {
+        let path = &self.path;
+        if columns.len() != self.schema.fields().len() {
+            return Err(parquet_error(
+                path,
+                format!(
+                    "{} columns given for a schema of {}",
+                    columns.len(),
+                    self.schema.fields().len()
+                ),
+            ));
+        }
+        let mut writers = self
+            .factory
+            .create_column_writers(0)
+            .map_err(|e| parquet_error(path, e))?;
+        let mut writer_iter = writers.iter_mut();
+        for (field, array) in self.schema.fields().iter().zip(columns) {
+            for leaf in compute_leaves(field, array).map_err(|e| parquet_error(path, e))? {
+                let Some(w) = writer_iter.next() else {
+                    return Err(parquet_error(path, "more leaf columns than the schema"));
+                };
+                w.write(&leaf).map_err(|e| parquet_error(path, e))?;
+            }
+        }
+        let chunks = writers
+            .into_iter()
+            .map(|w| w.close())
+            .collect::<std::result::Result<Vec<_>, _>>()
+            .map_err(|e| parquet_error(path, e))?;
+        Ok(EncodedRowGroup { chunks })
+    }
 }
 
 fn parquet_error(path: &Path, e: impl std::fmt::Display) -> Error {

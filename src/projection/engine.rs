@@ -12,18 +12,15 @@ use std::path::PathBuf;
 use std::str::FromStr;
 use std::sync::Arc;
 
-use arrow_array::types::Int8Type;
-use arrow_array::{
-    ArrayRef, DictionaryArray, Float64Array, Int8Array, Int16Array, StringArray, UInt32Array,
-};
+use arrow_array::{ArrayRef, Float64Array, Int16Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::basic::Encoding;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
+use crate::io::parquet::{EncodedRowGroup, RowGroupEncoder, RowGroupSink};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
-use crate::projection::sink::{EncodedRowGroup, Encoder, ParquetSink, properties};
 
 /// Default rows of `paths.parquet` per row group (about); a chunk holds whole scenarios.
 /// Half a million rows keeps each worker's buffers near 10 MB and row groups large enough
@@ -128,12 +125,8 @@ pub fn has_central_rate(model_name: &str) -> bool {
     !(model_name.starts_with("cbd") || model_name == "m6" || model_name == "m7")
 }
 
-fn sex_field(name: &str) -> Field {
-    Field::new(
-        name,
-        DataType::Dictionary(Box::new(DataType::Int8), Box::new(DataType::Utf8)),
-        false,
-    )
+fn label_field(name: &str) -> Field {
+    Field::new(name, DataType::Utf8, false)
 }
 
 /// Schema of `paths.parquet`; `m` is nullable because it is infinite (written as null)
@@ -141,7 +134,7 @@ fn sex_field(name: &str) -> Field {
 pub fn paths_schema(central_rates: bool) -> SchemaRef {
     let mut fields = vec![
         Field::new("scenario", DataType::UInt32, false),
-        sex_field("sex"),
+        label_field("sex"),
         Field::new("year", DataType::Int16, false),
         Field::new("age", DataType::Int16, false),
         Field::new("q", DataType::Float64, false),
@@ -156,9 +149,9 @@ pub fn paths_schema(central_rates: bool) -> SchemaRef {
 pub fn factors_schema() -> SchemaRef {
     Arc::new(Schema::new(vec![
         Field::new("scenario", DataType::UInt32, false),
-        sex_field("sex"),
+        label_field("sex"),
         Field::new("year", DataType::Int16, false),
-        sex_field("factor"),
+        label_field("factor"),
         Field::new("value", DataType::Float64, false),
     ]))
 }
@@ -167,16 +160,28 @@ pub fn factors_schema() -> SchemaRef {
 pub fn period_schema() -> SchemaRef {
     Arc::new(Schema::new(vec![
         Field::new("scenario", DataType::UInt32, false),
-        sex_field("sex"),
+        label_field("sex"),
         Field::new("year", DataType::Int16, false),
         Field::new("e65", DataType::Float64, false),
     ]))
 }
 
+/// Column descriptions stored in each file's metadata (key `tailspan.schema`).
+const PATHS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
+    sex: F or M; year: projected calendar year; age: age last birthday; \
+    q: one-year probability of death; m (log-rate models only): central rate -ln(1 - q), \
+    null where q = 1";
+const FACTORS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
+    sex: F or M; year: projected calendar year; factor: period index name (k, k1, k2); \
+    value: the projected index";
+const PERIOD_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
+    sex: F or M; year: projected calendar year; \
+    e65: period complete expectation of life at 65 from that year's rates, under UDD";
+
 /// Column encodings, chosen by measuring a 2,000-scenario CBD run (CPU time, zstd):
 /// dictionaries on the key columns cost a hash lookup per row, so the sorted integer keys
 /// are delta-encoded (runs of equal or consecutive values pack to a bit or two per row)
-/// and the sex and factor labels are written as length-delta strings, which together cut
+/// and the sex and factor labels are written as length-delta strings (readable by pyarrow), which together cut
 /// the CPU time by about a fifth; byte-stream-split floats compress about 10 % smaller
 /// under zstd at no extra cost.
 fn column_encodings(schema: &Schema) -> Vec<(String, Encoding)> {
@@ -186,7 +191,7 @@ fn column_encodings(schema: &Schema) -> Vec<(String, Encoding)> {
         .map(|f| {
             let encoding = match f.data_type() {
                 DataType::Float64 => Encoding::BYTE_STREAM_SPLIT,
-                DataType::Dictionary(..) => Encoding::DELTA_LENGTH_BYTE_ARRAY,
+                DataType::Utf8 => Encoding::DELTA_LENGTH_BYTE_ARRAY,
                 _ => Encoding::DELTA_BINARY_PACKED,
             };
             (f.name().clone(), encoding)
@@ -227,27 +232,29 @@ impl KeyColumns {
         self.year.extend(std::iter::repeat_n(year as i16, n));
     }
 
-    fn arrays(self, labels: &Arc<StringArray>) -> Result<Vec<ArrayRef>> {
-        Ok(vec![
+    fn arrays(self, labels: &[&str]) -> Vec<ArrayRef> {
+        vec![
             Arc::new(UInt32Array::from(self.scenario)),
-            dictionary(self.sex, labels)?,
+            label_column(&self.sex, labels),
             Arc::new(Int16Array::from(self.year)),
-        ])
+        ]
     }
 }
 
-fn dictionary(keys: Vec<i8>, labels: &Arc<StringArray>) -> Result<ArrayRef> {
-    let array = DictionaryArray::<Int8Type>::try_new(Int8Array::from(keys), labels.clone())
-        .map_err(|e| Error::Numerical(format!("building a label column: {e}")))?;
-    Ok(Arc::new(array))
+/// Labels as plain strings: a dictionary-typed column written without a dictionary page
+/// is not readable by every Parquet reader (pyarrow 26 refuses it).
+fn label_column(keys: &[i8], labels: &[&str]) -> ArrayRef {
+    Arc::new(StringArray::from_iter_values(
+        keys.iter().map(|&k| labels[k as usize]),
+    ))
 }
 
 /// One chunk's row group for each of paths, factors and period (`None` where not written).
 type ChunkGroups = [Option<EncodedRowGroup>; 3];
 
 struct Layout {
-    sex_labels: Arc<StringArray>,
-    factor_labels: Arc<StringArray>,
+    sex_labels: Vec<&'static str>,
+    factor_labels: Vec<&'static str>,
     /// Offset of each sex's first index name in `factor_labels`.
     factor_offsets: Vec<usize>,
     paths: bool,
@@ -260,7 +267,7 @@ fn encode_chunk(
     projector: &Projector,
     layout: &Layout,
     range: Range<u64>,
-    encoders: &[Option<Arc<Encoder>>; 3],
+    encoders: &[Option<Arc<RowGroupEncoder>>; 3],
 ) -> Result<ChunkGroups> {
     let mut buf = projector.buffer();
     let (years, ages) = (buf.years(), buf.ages());
@@ -298,7 +305,7 @@ fn encode_chunk(
     } = cols;
     let mut out: ChunkGroups = [None, None, None];
     if let (Some(p), Some(enc)) = (paths, &encoders[0]) {
-        let mut arrays = p.keys.arrays(&layout.sex_labels)?;
+        let mut arrays = p.keys.arrays(&layout.sex_labels);
         arrays.push(Arc::new(Int16Array::from(p.age)));
         arrays.push(Arc::new(Float64Array::from(p.q)));
         if let Some(m) = p.m {
@@ -307,13 +314,13 @@ fn encode_chunk(
         out[0] = Some(enc.encode(&arrays)?);
     }
     if let Some(enc) = &encoders[1] {
-        let mut arrays = factors.arrays(&layout.sex_labels)?;
-        arrays.push(dictionary(factor_keys, &layout.factor_labels)?);
+        let mut arrays = factors.arrays(&layout.sex_labels);
+        arrays.push(label_column(&factor_keys, &layout.factor_labels));
         arrays.push(Arc::new(Float64Array::from(factor_values)));
         out[1] = Some(enc.encode(&arrays)?);
     }
     if let (Some((keys, e65)), Some(enc)) = (period, &encoders[2]) {
-        let mut arrays = keys.arrays(&layout.sex_labels)?;
+        let mut arrays = keys.arrays(&layout.sex_labels);
         arrays.push(Arc::new(Float64Array::from(e65)));
         out[2] = Some(enc.encode(&arrays)?);
     }
@@ -386,29 +393,37 @@ pub fn write_projection(
     }
     let ages = projector.ages();
     let layout = Layout {
-        sex_labels: Arc::new(StringArray::from_iter_values(
-            basis.sexes().iter().map(|s| s.code()),
-        )),
-        factor_labels: Arc::new(StringArray::from_iter_values(factor_names)),
+        sex_labels: basis.sexes().iter().map(|s| s.code()).collect(),
+        factor_labels: factor_names,
         factor_offsets,
         paths: options.paths,
         central_rates,
         period_index: ages.index(PERIOD_AGE),
     };
-    let mut sinks: [Option<ParquetSink>; 3] = [None, None, None];
-    let mut encoders: [Option<Arc<Encoder>>; 3] = [None, None, None];
+    let mut sinks: [Option<RowGroupSink>; 3] = [None, None, None];
+    let mut encoders: [Option<Arc<RowGroupEncoder>>; 3] = [None, None, None];
     let mut files = Vec::new();
-    let plan: [(bool, &str, SchemaRef); 3] = [
-        (options.paths, "paths", paths_schema(central_rates)),
-        (true, "factors", factors_schema()),
-        (layout.period_index.is_some(), "period", period_schema()),
+    let plan: [(bool, &str, SchemaRef, &str); 3] = [
+        (
+            options.paths,
+            "paths",
+            paths_schema(central_rates),
+            PATHS_DESCRIPTION,
+        ),
+        (true, "factors", factors_schema(), FACTORS_DESCRIPTION),
+        (
+            layout.period_index.is_some(),
+            "period",
+            period_schema(),
+            PERIOD_DESCRIPTION,
+        ),
     ];
-    for (slot, (wanted, stem, schema)) in plan.into_iter().enumerate() {
+    for (slot, (wanted, stem, schema, description)) in plan.into_iter().enumerate() {
         let encodings = column_encodings(&schema);
         if wanted {
             let path = options.file(stem);
             let (sink, encoder) =
-                ParquetSink::create(&path, schema, properties(options.compression, encodings))?;
+                RowGroupSink::create(&path, schema, options.compression, description, &encodings)?;
             sinks[slot] = Some(sink);
             encoders[slot] = Some(encoder);
             files.push(path);
@@ -468,7 +483,7 @@ pub fn write_projection(
     let finished = sinks
         .into_iter()
         .flatten()
-        .map(ParquetSink::finish)
+        .map(RowGroupSink::close)
         .collect::<Result<Vec<_>>>()?;
     for file in finished {
         file.commit()?;

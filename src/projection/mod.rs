@@ -27,7 +27,6 @@ pub mod joint;
 pub mod period;
 pub mod random_walk;
 pub mod scenarios;
-pub mod sink;
 pub mod streams;
 pub mod uncertainty;
 
