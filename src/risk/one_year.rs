@@ -99,7 +99,10 @@ fn one_scenario(
     let mut hybrid: Vec<Vec<f64>> = Vec::with_capacity(basis.sexes().len());
     for i in 0..basis.sexes().len() {
         let realised = paths.year_rates(i, recalibration.year).ok_or_else(|| {
-            Error::model("one-year", "the projection does not reach the valuation year")
+            Error::model(
+                "one-year",
+                "the projection does not reach the valuation year",
+            )
         })?;
         let mut rows = Vec::with_capacity(ages * (1 + settings.horizon));
         rows.extend_from_slice(realised);
@@ -147,7 +150,10 @@ fn extend(
         for (i, age) in population.ages.iter().enumerate() {
             let e = population.exposure[(i, last)];
             let q = paths.q(sex_slot, year, age).ok_or_else(|| {
-                Error::model("one-year", format!("no projected rate for age {age} in {year}"))
+                Error::model(
+                    "one-year",
+                    format!("no projected rate for age {age} in {year}"),
+                )
             })?;
             let mean = e * -(-q).ln_1p();
             let d = if mean > 0.0 && mean.is_finite() {

@@ -77,7 +77,9 @@ pub fn value_scenarios(
                     book: Workspace::default(),
                     lifetimes: LifetimeWorkspace::default(),
                 },
-                |buffers, scenario| value_one(projector, book, lifetimes, settings, buffers, scenario),
+                |buffers, scenario| {
+                    value_one(projector, book, lifetimes, settings, buffers, scenario)
+                },
             )
             .collect::<Result<Vec<_>>>()?;
         sink(&results)?;

@@ -2,12 +2,13 @@
 
 pub mod cohort;
 pub mod driver;
+pub mod files;
 pub mod lifetimes;
 pub mod portfolio;
 pub mod schedule;
 
-pub use driver::{DriverSettings, ScenarioResult, value_scenarios};
 pub use cohort::{Cohort, LevelAdjustment, RateSurface};
+pub use driver::{DriverSettings, ScenarioResult, value_scenarios};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
 pub use schedule::{Basis, PaymentShape, Schedule};
