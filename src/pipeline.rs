@@ -20,8 +20,8 @@ use crate::risk::{CapitalSummary, StressFigures};
 use crate::valuation::driver::surfaces;
 use crate::valuation::files::ValuationFiles;
 use crate::valuation::{
-    Basis, DriverSettings, LevelAdjustment, LifetimeTable, PreparedBook, ScenarioValue, Workspace,
-    value_scenarios,
+    Basis, DriverSettings, Extracts, LevelAdjustment, LifetimeTable, PreparedBook, ScenarioValue,
+    Workspace, value_scenarios,
 };
 
 /// The projected model fitted to each sex, with the specifications that can refit it.
@@ -151,19 +151,42 @@ pub struct ValuationOutcome {
     pub values: Vec<ScenarioValue>,
     /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario.
     pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
+    /// The requested cells' q on the central path.
+    pub central_probes: Vec<f64>,
+    /// The requested cells' q per stochastic scenario.
+    pub probes: Vec<Vec<f64>>,
+    /// Period e°65 by sex and projected year, per stochastic scenario.
+    pub period: Vec<Vec<f64>>,
 }
 
-/// Values the book in scenarios `ids`, writing the valuation files to `options` and
-/// keeping the per-scenario figures (and the full values when `keep_values`).
+/// Which scenarios to value, where to write, and what to keep.
+pub struct ValueRequest<'a> {
+    /// Scenario numbers (a shard's block, or all).
+    pub ids: Range<u64>,
+    /// Output folder, compression and shard naming.
+    pub options: &'a OutputOptions,
+    /// Keep every scenario's full values (the hedges need the cash flows).
+    pub keep_values: bool,
+    /// Cells and period figures to read off each scenario.
+    pub extracts: &'a Extracts,
+}
+
+/// Values the book in the requested scenarios, writing the valuation files and keeping the
+/// per-scenario figures (and the full values when asked).
 pub fn value_book(
     config: &Config,
     setup: &ValuationSetup,
     projector: &Projector,
-    ids: Range<u64>,
-    options: &OutputOptions,
-    keep_values: bool,
+    request: &ValueRequest<'_>,
     progress: &(dyn Fn(u64) + Sync),
 ) -> Result<(ValuationOutcome, Vec<AtomicFile>)> {
+    let ValueRequest {
+        ids,
+        options,
+        keep_values,
+        extracts,
+    } = request;
+    let (ids, keep_values) = (ids.clone(), *keep_values);
     let settings = DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
@@ -176,12 +199,20 @@ pub fn value_book(
         Some(&setup.lifetimes),
         ids,
         settings,
+        extracts,
         |chunk| {
             files.write(chunk)?;
             for r in chunk {
                 if r.scenario == 0 {
                     outcome.central = Some(r.value.clone());
+                    outcome.central_probes = r.probes.clone();
                     continue;
+                }
+                if !r.probes.is_empty() {
+                    outcome.probes.push(r.probes.clone());
+                }
+                if !r.period.is_empty() {
+                    outcome.period.push(r.period.clone());
                 }
                 outcome.scenarios.push(r.scenario);
                 outcome.pv_expected.push(r.value.pv_expected);

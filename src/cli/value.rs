@@ -7,10 +7,11 @@ use crate::cli::progress::Progress;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
 use crate::io::write_json;
-use crate::pipeline::{ProjectedFits, ValuationSetup, summarize, value_book};
+use crate::pipeline::{ProjectedFits, ValuationSetup, ValueRequest, summarize, value_book};
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{OutputOptions, Shard, scenario_ids};
 use crate::risk::summary::RunSummary;
+use crate::valuation::Extracts;
 
 /// Arguments of `tailspan value`.
 #[derive(Debug, clap::Args)]
@@ -53,9 +54,13 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     };
     projector.prepare(ids.clone())?;
     let bar = Progress::new("valuing", ids.end - ids.start, quiet);
-    let (outcome, files) = value_book(&config, &setup, &projector, ids, &options, false, &|n| {
-        bar.advance(n)
-    })?;
+    let request = ValueRequest {
+        ids,
+        options: &options,
+        keep_values: false,
+        extracts: &Extracts::default(),
+    };
+    let (outcome, files) = value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;
     bar.finish();
     let summary = match shard {
         Some(_) => None,

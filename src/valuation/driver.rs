@@ -11,7 +11,9 @@ use std::ops::Range;
 
 use rayon::prelude::*;
 
-use crate::error::Result;
+use crate::data::Sex;
+use crate::error::{Error, Result};
+use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::{Projector, Purpose, ScenarioPaths, stream};
 use crate::valuation::cohort::{RateSurface, sex_index};
 use crate::valuation::lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
@@ -30,6 +32,20 @@ pub struct ScenarioResult {
     pub value: ScenarioValue,
     /// Truncated lifetimes per cohort and horizon (empty when not asked for).
     pub lifetimes: Vec<LifetimeRow>,
+    /// q at each requested (sex, age, year) cell, in request order.
+    pub probes: Vec<f64>,
+    /// Period e°65 by projected year, sex by sex (empty when not asked for).
+    pub period: Vec<f64>,
+}
+
+/// Scenario figures read off the rates besides the book's values: cells for the hedges
+/// and the report's fan charts, and period life expectancy at 65.
+#[derive(Debug, Clone, Default)]
+pub struct Extracts {
+    /// (sex, age, calendar year) cells whose q to keep.
+    pub probes: Vec<(Sex, i32, i32)>,
+    /// Keep period e°65 for every projected year and sex.
+    pub period: bool,
 }
 
 /// What the driver does per scenario.
@@ -64,6 +80,7 @@ pub fn value_scenarios(
     lifetimes: Option<&LifetimeTable>,
     ids: Range<u64>,
     settings: DriverSettings,
+    extracts: &Extracts,
     mut sink: impl FnMut(&[ScenarioResult]) -> Result<()>,
 ) -> Result<()> {
     let mut start = ids.start;
@@ -78,7 +95,10 @@ pub fn value_scenarios(
                     lifetimes: LifetimeWorkspace::default(),
                 },
                 |buffers, scenario| {
-                    value_one(projector, book, lifetimes, settings, buffers, scenario)
+                    let mut result =
+                        value_one(projector, book, lifetimes, settings, buffers, scenario)?;
+                    extract(&buffers.paths, extracts, &mut result)?;
+                    Ok(result)
                 },
             )
             .collect::<Result<Vec<_>>>()?;
@@ -113,4 +133,31 @@ fn value_one(
         table.compute(&surfaces, &mut buffers.lifetimes, &mut result.lifetimes)?;
     }
     Ok(result)
+}
+
+/// Reads the requested cells and period expectations off one scenario's rates.
+fn extract(paths: &ScenarioPaths, extracts: &Extracts, result: &mut ScenarioResult) -> Result<()> {
+    for &(sex, age, year) in &extracts.probes {
+        let slot = paths.sexes().iter().position(|&s| s == sex);
+        let q = slot.and_then(|i| paths.q(i, year, age)).ok_or_else(|| {
+            Error::model(
+                "projection",
+                format!("no projected rate for sex {sex}, age {age}, year {year}"),
+            )
+        })?;
+        result.probes.push(q);
+    }
+    if extracts.period {
+        let ages = paths.ages();
+        if let Some(from) = ages.index(PERIOD_AGE) {
+            for i in 0..paths.sexes().len() {
+                for year in paths.years().iter() {
+                    if let Some(row) = paths.year_rates(i, year) {
+                        result.period.push(complete_expectancy(&row[from..]));
+                    }
+                }
+            }
+        }
+    }
+    Ok(())
 }

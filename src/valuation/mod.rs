@@ -8,7 +8,7 @@ pub mod portfolio;
 pub mod schedule;
 
 pub use cohort::{Cohort, LevelAdjustment, RateSurface};
-pub use driver::{DriverSettings, ScenarioResult, value_scenarios};
+pub use driver::{DriverSettings, Extracts, ScenarioResult, value_scenarios};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
 pub use schedule::{Basis, PaymentShape, Schedule};
