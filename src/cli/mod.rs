@@ -11,6 +11,7 @@ pub mod check;
 pub mod fit;
 pub mod progress;
 pub mod project;
+pub mod run;
 pub mod synth;
 pub mod table;
 pub mod value;
@@ -22,6 +23,9 @@ pub struct Cli {
     /// Print no progress bars.
     #[arg(long, short, global = true)]
     pub quiet: bool,
+    /// Log each stage's time on standard error.
+    #[arg(long, short, global = true)]
+    pub verbose: bool,
     /// The subcommand to run.
     #[command(subcommand)]
     pub command: Command,
@@ -42,6 +46,8 @@ pub enum Command {
     Project(project::ProjectArgs),
     /// Value the book in every scenario; write results, capital and summary.json.
     Value(value::ValueArgs),
+    /// Everything the config asks for — fit, project, value, capital, hedges — and a report.
+    Run(run::RunArgs),
 }
 
 /// Runs the parsed command line.
@@ -53,5 +59,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Fit(args) => fit::run(&args, cli.quiet),
         Command::Project(args) => project::run(&args, cli.quiet),
         Command::Value(args) => value::run(&args, cli.quiet),
+        Command::Run(args) => run::run(&args, cli.quiet, cli.verbose),
     }
 }

@@ -4,13 +4,23 @@
 //! model fitted to each sex, a projector over the joint basis — and must build them the same
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
+pub mod report;
+
 use std::ops::Range;
 use std::sync::Arc;
 
+use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray, UInt32Array};
+use arrow_schema::{DataType, Field, Schema};
+
 use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
 use crate::error::{Error, Result};
+use crate::hedge::legs::BookResults;
+use crate::hedge::qforward::ReferenceCells;
+use crate::hedge::spec::HedgeConfig;
+use crate::hedge::{HedgeInputs, HedgeResults, evaluate};
 use crate::io::AtomicFile;
 use crate::io::hash::{InputHash, hash_file};
+use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink};
 use crate::life::Fractional;
 use crate::models::{FittedModel, MortalityModel, build_model};
 use crate::projection::{BootstrapSource, OutputOptions, Projector, Settings, Uncertainty};
@@ -325,3 +335,83 @@ pub fn summarize(
         hedges: None,
     })
 }
+
+/// Prices and values the configured hedges on a whole run's valuation (kept with
+/// `keep_values` and the hedges' reference cells as the first probes).
+pub fn hedge_stage(
+    config: &Config,
+    hedges: &HedgeConfig,
+    setup: &ValuationSetup,
+    outcome: &ValuationOutcome,
+) -> Result<HedgeResults> {
+    let central = outcome
+        .central
+        .as_ref()
+        .ok_or_else(|| Error::model("hedge", "the central path (scenario 0) was not valued"))?;
+    if outcome.values.is_empty() {
+        return Err(Error::config(
+            &config.file,
+            "projection.noise",
+            "hedges are priced on stochastic scenarios: set `noise = true`",
+        ));
+    }
+    let cells = ReferenceCells::of(hedges);
+    let n = cells.cells.len();
+    let per_scenario: Vec<Vec<f64>> = outcome.probes.iter().map(|p| p[..n].to_vec()).collect();
+    let references = cells.assemble(&outcome.central_probes[..n], &per_scenario)?;
+    let curve = DiscountCurve::from_config(config)?;
+    let inputs = HedgeInputs {
+        book: BookResults {
+            central,
+            scenarios: &outcome.values,
+        },
+        curve: &curve,
+        valuation_year: setup.year,
+        references: &references,
+        levels: &config.capital.levels,
+    };
+    evaluate(hedges, &inputs)
+}
+
+/// Writes `hedge.parquet` (`scenario, contract, fixed_leg, floating_leg, net`).
+pub fn write_hedge_table(
+    config: &Config,
+    results: &HedgeResults,
+    outcome: &ValuationOutcome,
+) -> Result<AtomicFile> {
+    let table = results.table(&outcome.scenarios)?;
+    let schema = Arc::new(Schema::new(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        Field::new("contract", DataType::Utf8, false),
+        Field::new("fixed_leg", DataType::Float64, false),
+        Field::new("floating_leg", DataType::Float64, false),
+        Field::new("net", DataType::Float64, false),
+    ]));
+    let path = config.output_folder().join("hedge.parquet");
+    let columns: Vec<ArrayRef> = vec![
+        Arc::new(UInt32Array::from_iter_values(
+            table.scenario.iter().map(|&s| s as u32),
+        )),
+        Arc::new(StringArray::from(table.contract)),
+        Arc::new(Float64Array::from(table.fixed_leg)),
+        Arc::new(Float64Array::from(table.floating_leg)),
+        Arc::new(Float64Array::from(table.net)),
+    ];
+    let batch = RecordBatch::try_new(schema.clone(), columns).map_err(|e| Error::Parquet {
+        path: path.clone(),
+        message: e.to_string(),
+    })?;
+    let mut sink = ParquetSink::create(
+        &path,
+        schema,
+        config.output.compression,
+        HEDGE_DESCRIPTION,
+        DEFAULT_ROWS_PER_GROUP,
+    )?;
+    sink.write(&batch)?;
+    sink.close()
+}
+
+const HEDGE_DESCRIPTION: &str = "scenario: scenario number; contract: hedge name from the \
+    config; fixed_leg: PV of the fixed leg; floating_leg: PV of the floating leg in the \
+    scenario; net: value to the book's owner (floating less fixed for a hedger)";
