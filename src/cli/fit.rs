@@ -176,7 +176,7 @@ fn print_table(fits: &FitSet) -> Result<()> {
     let err = |e| Error::io("<stdout>", e);
     writeln!(
         out,
-        "{:<4}{:<12}{:<9}{:>14}{:>12}{:>8}{:>14}{:>14}{:>7}  drift",
+        "{:<4}{:<17}{:<9}{:>14}{:>12}{:>8}{:>14}{:>14}{:>7}  drift",
         "sex", "model", "method", "loglik", "deviance", "params", "AIC", "BIC", "iter"
     )
     .map_err(err)?;
@@ -191,7 +191,7 @@ fn print_table(fits: &FitSet) -> Result<()> {
             .collect();
         writeln!(
             out,
-            "{:<4}{:<12}{:<9}{:>14.2}{:>12.2}{:>8}{:>14.2}{:>14.2}{:>7}  {}",
+            "{:<4}{:<17}{:<9}{:>14.2}{:>12.2}{:>8}{:>14.2}{:>14.2}{:>7}  {}",
             m.sex().code(),
             m.name(),
             m.method(),
