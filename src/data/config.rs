@@ -815,6 +815,45 @@ years = [1975, 2024]
     }
 
     #[test]
+    fn cohort_kinds_and_settings_parse() {
+        let text = format!(
+            "{MINIMAL}\n[model]\nkind = [\"apc\", \"renshaw-haberman\", \"m6\", \"m7\"]\n\
+             cohort_loading = \"unit\"\nmin_cohort_cells = 5\ncohort_series = \"ar1-trend\"\n"
+        );
+        let c = Config::parse(&text, Path::new("c.toml")).unwrap();
+        assert_eq!(
+            c.model.kinds(),
+            vec![
+                ModelKind::Apc,
+                ModelKind::RenshawHaberman,
+                ModelKind::M6,
+                ModelKind::M7
+            ]
+        );
+        assert_eq!(c.model.cohort_loading, CohortLoading::Unit);
+        assert_eq!(c.model.min_cohort_cells, 5);
+        assert_eq!(c.model.cohort_series, CohortSeriesKind::Ar1Trend);
+        assert_eq!(c.model.method_for(ModelKind::M7), FitMethod::Binomial);
+        let defaults = Config::parse(MINIMAL, Path::new("c.toml")).unwrap().model;
+        assert_eq!(defaults.min_cohort_cells, 3);
+        assert_eq!(defaults.cohort_loading, CohortLoading::Free);
+    }
+
+    #[test]
+    fn min_cohort_cells_of_zero_is_rejected() {
+        let text = format!("{MINIMAL}\n[model]\nmin_cohort_cells = 0\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("model.min_cohort_cells"), "{err}");
+        let text = format!("{MINIMAL}\n[model]\ncohort_loading = \"half\"\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("cohort_loading"), "{err}");
+    }
+
+    #[test]
     fn percent_rate_is_rejected_with_hint() {
         let text = format!("{MINIMAL}\n[valuation]\nrate = 3\n");
         let err = Config::parse(&text, Path::new("c.toml"))
