@@ -1,5 +1,6 @@
 //! Constrained Newton–Raphson for mortality models whose linear predictor is linear in
-//! the parameters (age–period–cohort, M6, M7).
+//! the parameters (age–period–cohort, M6, M7), and Fisher scoring for bilinear ones
+//! (the joint stage of the Renshaw–Haberman fit).
 //!
 //! Each cell's predictor η = Σ θ_p z_p touches at most four parameters, so the score and
 //! the expected information are accumulated cell by cell in O(cells). The models are not
@@ -59,24 +60,61 @@ impl Cell {
     }
 }
 
-/// Log-likelihood kernel (constants left out) at `theta`.
-fn kernel(family: Family, cells: &[Cell], theta: &[f64]) -> f64 {
-    cells
+/// A cell's predictor and its gradient terms at θ; unused slots have coefficient 0.
+pub type Linearised = (f64, [(usize, f64); 5]);
+
+/// `x ln(x / y)` with 0 ln 0 = 0.
+fn xlog(x: f64, y: f64) -> f64 {
+    if x > 0.0 { x * (x / y).ln() } else { 0.0 }
+}
+
+/// Log-likelihood minus the saturated model's (minus half the deviance) at `theta`: a sum
+/// of small terms, so that the ascent check of a step keeps its precision where the
+/// log-likelihood itself (large terms that cancel) would not.
+fn kernel(
+    family: Family,
+    cells: &[Cell],
+    theta: &[f64],
+    predictor: &impl Fn(&Cell, &[f64]) -> Linearised,
+) -> f64 {
+    -cells
         .iter()
         .map(|c| {
-            let eta = c.eta(theta);
+            let eta = predictor(c, theta).0;
+            let (d, n) = (c.deaths, c.size);
             match family {
-                Family::Poisson => c.deaths * eta - c.size * eta.exp(),
+                Family::Poisson => {
+                    let mu = n * eta.exp();
+                    let log_term = if d > 0.0 {
+                        d * ((d / n).ln() - eta)
+                    } else {
+                        0.0
+                    };
+                    log_term - (d - mu)
+                }
+                // d ln(d / nq) + (n − d) ln((n − d) / n(1 − q)) with
+                // ln q = −softplus(−η), ln(1 − q) = −softplus(η).
                 Family::Binomial => {
-                    -c.deaths * softplus(-eta) - (c.size - c.deaths) * softplus(eta)
+                    let deaths = if d > 0.0 {
+                        xlog(d, n) + d * softplus(-eta)
+                    } else {
+                        0.0
+                    };
+                    let survivors = if n > d {
+                        xlog(n - d, n) + (n - d) * softplus(eta)
+                    } else {
+                        0.0
+                    };
+                    deaths + survivors
                 }
             }
         })
-        .sum()
+        .sum::<f64>()
 }
 
-/// Maximises the likelihood subject to `constraints` θ = 0 from `start` (which need not
-/// satisfy them). Returns the estimates and the iterations, or the rule that failed.
+/// Maximises the likelihood of a predictor linear in θ (each cell's `terms`) subject to
+/// `constraints` θ = 0 from `start` (which need not satisfy them). Returns the estimates
+/// and the iterations, or the rule that failed.
 pub fn fit(
     family: Family,
     cells: &[Cell],
@@ -85,17 +123,45 @@ pub fn fit(
     tolerance: f64,
     max_iterations: usize,
 ) -> std::result::Result<(Vec<f64>, usize), String> {
+    let targets = vec![0.0; constraints.nrows()];
+    let linear = |c: &Cell, theta: &[f64]| -> Linearised {
+        let t = c.terms;
+        (c.eta(theta), [t[0], t[1], t[2], t[3], (0, 0.0)])
+    };
+    fit_scoring(
+        family,
+        cells,
+        &linear,
+        (constraints, &targets),
+        start,
+        tolerance,
+        max_iterations,
+    )
+}
+
+/// Fisher scoring for any predictor: `predictor` gives each cell's η and gradient at θ
+/// (for a linear predictor this is Newton–Raphson), subject to `constraints` θ =
+/// `targets`.
+pub fn fit_scoring(
+    family: Family,
+    cells: &[Cell],
+    predictor: &impl Fn(&Cell, &[f64]) -> Linearised,
+    (constraints, targets): (&DMatrix<f64>, &[f64]),
+    start: Vec<f64>,
+    tolerance: f64,
+    max_iterations: usize,
+) -> std::result::Result<(Vec<f64>, usize), String> {
     let p = start.len();
     let r = constraints.nrows();
     let mut theta = start;
-    let mut previous = kernel(family, cells, &theta);
+    let mut previous = kernel(family, cells, &theta, predictor);
     let mut system = DMatrix::zeros(p + r, p + r);
     let mut rhs = DVector::zeros(p + r);
     for it in 1..=max_iterations {
         system.fill(0.0);
         rhs.fill(0.0);
         for c in cells {
-            let eta = c.eta(&theta);
+            let (eta, terms) = predictor(c, &theta);
             let (residual, weight) = match family {
                 Family::Poisson => {
                     let mu = c.size * eta.exp();
@@ -106,12 +172,12 @@ pub fn fit(
                     (c.deaths - c.size * q, c.size * q * (1.0 - q))
                 }
             };
-            for &(a, za) in &c.terms {
+            for &(a, za) in &terms {
                 if za == 0.0 {
                     continue;
                 }
                 rhs[a] += residual * za;
-                for &(b, zb) in &c.terms {
+                for &(b, zb) in &terms {
                     system[(a, b)] += weight * za * zb;
                 }
             }
@@ -124,7 +190,7 @@ pub fn fit(
                 system[(p + k, q)] = constraints[(k, q)];
                 system[(q, p + k)] = constraints[(k, q)];
             }
-            rhs[p + k] = -violation[k];
+            rhs[p + k] = targets[k] - violation[k];
         }
         let solution = system
             .clone()
@@ -144,11 +210,14 @@ pub fn fit(
                 .map(|(s, u)| s * u)
                 .sum::<f64>();
         let mut trial: Vec<f64> = theta.iter().zip(&step).map(|(t, s)| t + s).collect();
-        let mut current = kernel(family, cells, &trial);
+        let mut current = kernel(family, cells, &trial, predictor);
         let mut halvings = 0;
         // A step that only restores the constraints may lower ℓ; halving applies only once
         // the iterate is feasible.
-        let feasible = violation.amax() < 1e-9;
+        let feasible = violation
+            .iter()
+            .zip(targets)
+            .all(|(v, t)| (v - t).abs() < 1e-9);
         while feasible
             && (current.is_nan() || current < previous - 1e-12 * previous.abs())
             && halvings < 40
@@ -157,7 +226,7 @@ pub fn fit(
                 *s *= 0.5;
             }
             trial = theta.iter().zip(&step).map(|(t, s)| t + s).collect();
-            current = kernel(family, cells, &trial);
+            current = kernel(family, cells, &trial, predictor);
             halvings += 1;
         }
         theta = trial;

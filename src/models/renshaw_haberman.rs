@@ -28,6 +28,7 @@ use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::apc::{check_common, check_window};
 use crate::models::cohort::{CohortEffects, CohortGrid};
+use crate::models::glm::{self, Cell, Family, Linearised};
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
 use crate::models::{
     FitDiagnostics, FittedModel, LeeCarterMethod, LeeCarterParams, MortalityModel,
@@ -124,8 +125,9 @@ impl State<'_> {
         self.a[i] + self.b[i] * self.k[j] + self.b0[i] * self.g[c]
     }
 
-    /// Refreshes every fitted death count; returns half the deviance up to a constant,
-    /// Σ [fitted − d η].
+    /// Refreshes every fitted death count; returns half the deviance,
+    /// Σ [d (ln(d/E) − η) − (d − fitted)], a sum of small non-negative terms that keeps
+    /// its precision where the log-likelihood (large terms that cancel) would not.
     fn refresh(&mut self) -> f64 {
         let mut total = 0.0;
         for idx in 0..self.fitted.len() {
@@ -133,8 +135,14 @@ impl State<'_> {
             self.fitted[idx] = match self.cohort[idx] {
                 Some(c) => {
                     let eta = self.eta(i, j, c);
-                    let f = self.exposure[idx] * eta.exp();
-                    total += f - self.deaths[idx] * eta;
+                    let (d, e) = (self.deaths[idx], self.exposure[idx]);
+                    let f = e * eta.exp();
+                    let log_term = if d > 0.0 {
+                        d * ((d / e).ln() - eta)
+                    } else {
+                        0.0
+                    };
+                    total += log_term - (d - f);
                     f
                 }
                 None => 0.0,
@@ -176,6 +184,21 @@ impl State<'_> {
             }
         }
         (num, den)
+    }
+
+    /// The weighted cells, with their (age, year, cohort) positions in the terms.
+    fn cells(&self) -> Vec<Cell> {
+        (0..self.fitted.len())
+            .filter_map(|idx| {
+                let c = self.cohort[idx]?;
+                let (i, j) = (idx % self.na, idx / self.na);
+                Some(Cell {
+                    deaths: self.deaths[idx],
+                    size: self.exposure[idx],
+                    terms: [(i, 0.0), (j, 0.0), (c, 0.0), (0, 0.0)],
+                })
+            })
+            .collect()
     }
 
     /// The Newton step of γ (diagonal information W) projected in the W metric onto
@@ -260,7 +283,7 @@ impl RenshawHaberman {
         }
         let mut cycles = 0;
         let mut converged = false;
-        for cycle in 1..=p.max_iterations {
+        for cycle in 1..=p.max_iterations.min(UNIDIMENSIONAL_CYCLES) {
             let step = s.sweep(na, |i, _, _| i, |_, _, _, _| 1.0);
             s.a.iter_mut().zip(&step).for_each(|(a, d)| *a += d);
             s.refresh();
@@ -294,18 +317,31 @@ impl RenshawHaberman {
             }
             previous = current;
         }
+        let cells = s.cells();
+        let mut parameters = normalise(s.a, s.b, s.k, s.b0, s.g, free)?;
         if !converged {
-            return Err(Error::model(
-                NAME,
-                format!(
-                    "sex {sex}: the Poisson fit did not converge in {} cycles (change in \
-                     log-likelihood still above {:e}); raise model.max_iterations or \
-                     model.tolerance, or set model.cohort_loading = \"unit\"",
-                    p.max_iterations, p.tolerance
-                ),
-            ));
+            let remaining = p.max_iterations.saturating_sub(cycles).max(1);
+            let (estimates, steps) =
+                joint_fit(&cells, parameters, free, &centred, p.tolerance, remaining).map_err(
+                    |rule| {
+                        Error::model(
+                            NAME,
+                            format!(
+                                "sex {sex}: {rule} (after {cycles} cycles of one-dimensional \
+                                 updates){}",
+                                if free {
+                                    "; or set model.cohort_loading = \"unit\""
+                                } else {
+                                    ""
+                                }
+                            ),
+                        )
+                    },
+                )?;
+            parameters = estimates;
+            cycles += steps;
         }
-        let (ax, bx, kt, b0x, gamma) = normalise(s, free)?;
+        let (ax, bx, kt, b0x, gamma) = parameters;
         let (values, series) = grid.complete(&gamma, p.cohort_series)?;
         let cohorts = CohortEffects {
             first_cohort: grid.first_cohort,
@@ -337,6 +373,96 @@ impl RenshawHaberman {
     }
 }
 
+/// One-dimensional cycles before the joint Fisher-scoring stage. The cycles are cheap
+/// and robust far from the optimum but converge only linearly along the correlated
+/// directions of (b, k) and (b0, γ): on the invented demo population (46 ages × 50 years)
+/// the change per cycle still shrank by only 0.3 % a cycle after 4000 cycles. Joint
+/// scoring from where the cycles leave off converges in a few steps.
+const UNIDIMENSIONAL_CYCLES: usize = 100;
+
+/// Fisher scoring on all parameters at once, θ = (a, b, k, γ, b0 if free), under the
+/// linear constraints Σb = 1, Σk = 0, Σγ = 0, Σ(c − c̄)γ = 0 (and Σb0 = 1), from the
+/// normalised `start`. Returns the normalised estimates and the steps taken.
+fn joint_fit(
+    cells: &[Cell],
+    start: Parameters,
+    free: bool,
+    centred: &[f64],
+    tolerance: f64,
+    max_iterations: usize,
+) -> std::result::Result<(Parameters, usize), String> {
+    let (a, b, k, b0, g) = start;
+    let (na, nt, nc) = (a.len(), k.len(), g.len());
+    let (ob, ok, og, ob0) = (na, 2 * na, 2 * na + nt, 2 * na + nt + nc);
+    let p = ob0 + if free { na } else { 0 };
+    let mut theta: Vec<f64> = a.iter().chain(&b).chain(&k).chain(&g).copied().collect();
+    if free {
+        theta.extend(&b0);
+    }
+    let rows = if free { 5 } else { 4 };
+    let mut constraints = DMatrix::zeros(rows, p);
+    let mut targets = vec![0.0; rows];
+    for i in 0..na {
+        constraints[(0, ob + i)] = 1.0;
+        if free {
+            constraints[(4, ob0 + i)] = 1.0;
+        }
+    }
+    targets[0] = 1.0;
+    if free {
+        targets[4] = 1.0;
+    }
+    for j in 0..nt {
+        constraints[(1, ok + j)] = 1.0;
+    }
+    for (c, z) in centred.iter().enumerate() {
+        constraints[(2, og + c)] = 1.0;
+        constraints[(3, og + c)] = *z;
+    }
+    // Each cell's terms carry its (age, year, cohort) positions.
+    let predictor = |cell: &Cell, th: &[f64]| -> Linearised {
+        let (i, j, c) = (cell.terms[0].0, cell.terms[1].0, cell.terms[2].0);
+        let loading = if free { th[ob0 + i] } else { 1.0 };
+        let (bi, kj, gc) = (th[ob + i], th[ok + j], th[og + c]);
+        let eta = th[i] + bi * kj + loading * gc;
+        let last = if free { (ob0 + i, gc) } else { (0, 0.0) };
+        (
+            eta,
+            [
+                (i, 1.0),
+                (ob + i, kj),
+                (ok + j, bi),
+                (og + c, loading),
+                last,
+            ],
+        )
+    };
+    let (theta, steps) = glm::fit_scoring(
+        Family::Poisson,
+        cells,
+        &predictor,
+        (&constraints, &targets),
+        theta,
+        tolerance,
+        max_iterations,
+    )?;
+    let b0 = if free {
+        theta[ob0..].to_vec()
+    } else {
+        vec![1.0; na]
+    };
+    let parameters = normalise(
+        theta[..na].to_vec(),
+        theta[ob..ok].to_vec(),
+        theta[ok..og].to_vec(),
+        b0,
+        theta[og..ob0].to_vec(),
+        free,
+    )
+    .map_err(|e| e.to_string())?;
+    Ok((parameters, steps))
+}
+
 /// (a, b, k, b0, γ).
 type Parameters = (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>);
 
@@ -344,15 +470,14 @@ type Parameters = (Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>, Vec<f64>);
 /// a → a + b k̄; b → b/Σb with k → k Σb; γ → γ − γ̄ with a → a + b0 γ̄ (γ̄ is zero up to
 /// rounding, as the γ updates keep Σγ = 0); and for the free loading b0 → b0/Σb0 with
 /// γ → γ Σb0, which keeps both cohort constraints.
-fn normalise(s: State<'_>, free: bool) -> Result<Parameters> {
-    let State {
-        mut a,
-        mut b,
-        mut k,
-        mut b0,
-        mut g,
-        ..
-    } = s;
+fn normalise(
+    mut a: Vec<f64>,
+    mut b: Vec<f64>,
+    mut k: Vec<f64>,
+    mut b0: Vec<f64>,
+    mut g: Vec<f64>,
+    free: bool,
+) -> Result<Parameters> {
     let kbar = k.iter().sum::<f64>() / k.len() as f64;
     k.iter_mut().for_each(|v| *v -= kbar);
     a.iter_mut().zip(&b).for_each(|(a, b)| *a += b * kbar);
