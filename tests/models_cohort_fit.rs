@@ -214,3 +214,28 @@ fn unidentified_cohorts_exit_2_through_the_binary() {
     );
     assert!(dir.path().join("out/fit.json").exists());
 }
+
+#[test]
+fn sparse_cells_carry_no_weight_and_m7_needs_three_ages() {
+    // Two cells of the sparse fixture have zero exposure (make_models_fixtures.py); with
+    // 20 ages × 20 years the four corner cohorts hold 1 + 2 + 2 + 1 cells.
+    let population = load_population("sparse_experience.csv");
+    let fit = apc().fit_population(&population).unwrap();
+    assert_eq!(fit.diagnostics().observations, 400 - 6 - 2);
+    let residuals = fit.residuals();
+    assert!(residuals[(19, 3)].is_nan() && residuals[(0, 19)].is_nan());
+    assert_eq!(residuals.iter().filter(|r| r.is_finite()).count(), 392);
+    let m6 = cbd_cohort(CbdCohortVariant::M6)
+        .fit_population(&population)
+        .unwrap();
+    assert_eq!(m6.diagnostics().observations, 392);
+
+    let two_ages = population
+        .restrict(tailspan::data::Span::new(70, 71).unwrap(), population.years)
+        .unwrap();
+    let err = cbd_cohort(CbdCohortVariant::M7)
+        .fit_population(&two_ages)
+        .unwrap_err()
+        .to_string();
+    assert!(err.contains("at least 3 ages"), "{err}");
+}

@@ -126,7 +126,6 @@ impl CbdCohort {
     pub fn fit_population(&self, population: &Population) -> Result<CbdCohortFit> {
         let p = &self.params;
         let name = p.variant.name();
-        check_window(name, population, p.closure_fit_ages, p.max_age)?;
         let (ages, years, sex) = (population.ages, population.years, population.sex);
         let (na, nt, nk) = (ages.len(), years.len(), p.variant.indices());
         if na < nk {
@@ -135,6 +134,7 @@ impl CbdCohort {
                 format!("sex {sex}: {nk} period indices need at least {nk} ages, found {na}"),
             ));
         }
+        check_window(name, population, p.closure_fit_ages, p.max_age)?;
         let needed = p.cohort_series.minimum_length().max(nk + 1);
         let grid = CohortGrid::new(name, ages, years, p.min_cohort_cells, needed)?;
         grid.require_deaths(name, population)?;
