@@ -6,7 +6,14 @@
 //! 2002; Renshaw & Haberman 2006, section 3). The likelihood surface is known to have
 //! flat ridges and poor local maxima from a naive start, so the start is the Poisson
 //! Lee–Carter fit for (a, b, k), and γ is then profiled by Newton sweeps with those held,
-//! i.e. γ starts as the cohort pattern the Lee–Carter fit leaves in the data.
+//! i.e. γ starts as the cohort pattern the Lee–Carter fit leaves in the data. The cycles
+//! converge only linearly, so after a hundred of them the fit finishes
+//! with joint Fisher scoring on all parameters under the same constraints.
+//!
+//! With the free loading the likelihood can keep rising along a degenerate path (b0_x
+//! piling onto a few ages while γ grows) when the data hold little cohort signal: on the
+//! invented demo population, which has none, no maximum was reached. The fit then stops
+//! at `model.max_iterations` with an error that points to the unit loading.
 //!
 //! Constraints: Σ b_x = 1 and Σ k_t = 0 (as for Lee–Carter); Σ_c γ_c = 0 over the
 //! estimated cohorts, the level moving into a_x (a_x → a_x + b0_x γ̄); with the free

@@ -162,7 +162,7 @@ impl CohortSeries {
     }
 
     /// The next `shocks.len()` cohort values after the fitted history, with innovation
-    /// σ·shocks[h] in step h: zero shocks give the central projection, standard normal
+    /// σ·`shocks[h]` in step h: zero shocks give the central projection, standard normal
     /// shocks a simulated path.
     pub fn project(&self, shocks: &[f64]) -> Vec<f64> {
         let sigma = self.sigma2.sqrt();
