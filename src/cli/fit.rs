@@ -108,8 +108,9 @@ fn select_window(config: &Config, experience: &Experience) -> Result<Experience>
 /// Column description stored in the file's metadata.
 const RESIDUALS_SCHEMA: &str = "model: model name (only when several kinds are fitted); \
     sex: F or M; year: calendar year; age: age last birthday; residual: signed deviance \
-    residual of the cell (Poisson for lee-carter, binomial on E0 = Ec + D/2 for cbd), null \
-    where the cell has no exposure";
+    residual of the cell (Poisson for lee-carter, apc and renshaw-haberman; binomial on \
+    E0 = Ec + D/2 for cbd, m6 and m7), null where the cell has no exposure or, for the cohort \
+    models, belongs to a cohort left out of the fit (model.min_cohort_cells)";
 
 /// Writes the deviance residuals, one row per fitted cell, and returns the uncommitted file.
 fn write_residuals(fits: &FitSet, config: &Config, path: PathBuf) -> Result<AtomicFile> {
@@ -176,7 +177,7 @@ fn print_table(fits: &FitSet) -> Result<()> {
     let err = |e| Error::io("<stdout>", e);
     writeln!(
         out,
-        "{:<4}{:<12}{:<9}{:>14}{:>12}{:>8}{:>14}{:>14}{:>7}  drift",
+        "{:<4}{:<17}{:<9}{:>14}{:>12}{:>8}{:>14}{:>14}{:>7}  drift",
         "sex", "model", "method", "loglik", "deviance", "params", "AIC", "BIC", "iter"
     )
     .map_err(err)?;
@@ -191,7 +192,7 @@ fn print_table(fits: &FitSet) -> Result<()> {
             .collect();
         writeln!(
             out,
-            "{:<4}{:<12}{:<9}{:>14.2}{:>12.2}{:>8}{:>14.2}{:>14.2}{:>7}  {}",
+            "{:<4}{:<17}{:<9}{:>14.2}{:>12.2}{:>8}{:>14.2}{:>14.2}{:>7}  {}",
             m.sex().code(),
             m.name(),
             m.method(),

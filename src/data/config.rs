@@ -80,6 +80,14 @@ pub enum ModelKind {
     LeeCarter,
     /// Cairns–Blake–Dowd (M5): logit q = k1_t + (x − x̄) k2_t.
     Cbd,
+    /// Age–period–cohort: log m = a_x + k_t + γ_{t−x}.
+    Apc,
+    /// Renshaw–Haberman: log m = a_x + b_x k_t + b0_x γ_{t−x}.
+    RenshawHaberman,
+    /// CBD with cohort (M6): logit q = k1_t + (x − x̄) k2_t + γ_{t−x}.
+    M6,
+    /// CBD with cohort and curvature (M7): M6 + k3_t ((x − x̄)² − σ̂²).
+    M7,
 }
 
 impl ModelKind {
@@ -88,8 +96,37 @@ impl ModelKind {
         match self {
             ModelKind::LeeCarter => "lee-carter",
             ModelKind::Cbd => "cbd",
+            ModelKind::Apc => "apc",
+            ModelKind::RenshawHaberman => "renshaw-haberman",
+            ModelKind::M6 => "m6",
+            ModelKind::M7 => "m7",
         }
     }
+
+    /// Whether the model has a cohort effect γ_{t−x}.
+    pub fn has_cohort(self) -> bool {
+        !matches!(self, ModelKind::LeeCarter | ModelKind::Cbd)
+    }
+}
+
+/// How the cohort effect of the Renshaw–Haberman model is loaded on each age.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum CohortLoading {
+    /// A fitted age loading b0_x with Σ b0_x = 1 (Renshaw & Haberman 2006).
+    Free,
+    /// The common simplification b0_x = 1 at every age.
+    Unit,
+}
+
+/// Time-series model of the cohort index γ_c over birth years c.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum CohortSeriesKind {
+    /// ARIMA(1,1,0) with drift: Δγ_c = μ0 + φ Δγ_{c−1} + ε_c.
+    Arima110Drift,
+    /// AR(1) with a linear trend: γ_c = μ0 + μ1 τ_c + φ γ_{c−1} + ε_c.
+    Ar1Trend,
 }
 
 /// How a model's parameters are estimated.
@@ -141,6 +178,15 @@ pub struct ModelConfig {
     /// Iteration cap for iterative fits; hitting it is an error.
     #[serde(default = "default_max_iterations")]
     pub max_iterations: usize,
+    /// Renshaw–Haberman: `free` fits b0_x, `unit` fixes b0_x = 1.
+    #[serde(default = "default_cohort_loading")]
+    pub cohort_loading: CohortLoading,
+    /// Cohorts seen in fewer cells of the age × year grid are not estimated from the data.
+    #[serde(default = "default_min_cohort_cells")]
+    pub min_cohort_cells: usize,
+    /// Time-series model of the cohort index.
+    #[serde(default = "default_cohort_series")]
+    pub cohort_series: CohortSeriesKind,
 }
 
 /// Parameter uncertainty switch: `true`/`false` or a named method.
@@ -322,6 +368,15 @@ fn default_tolerance() -> f64 {
 fn default_max_iterations() -> usize {
     1000
 }
+fn default_cohort_loading() -> CohortLoading {
+    CohortLoading::Free
+}
+fn default_min_cohort_cells() -> usize {
+    3
+}
+fn default_cohort_series() -> CohortSeriesKind {
+    CohortSeriesKind::Arima110Drift
+}
 fn default_scenarios() -> usize {
     1000
 }
@@ -373,6 +428,9 @@ impl Default for ModelConfig {
             max_age: default_max_age(),
             tolerance: default_tolerance(),
             max_iterations: default_max_iterations(),
+            cohort_loading: default_cohort_loading(),
+            min_cohort_cells: default_min_cohort_cells(),
+            cohort_series: default_cohort_series(),
         }
     }
 }
@@ -436,14 +494,15 @@ impl ModelConfig {
     }
 
     /// The fit method for `kind`: the configured one for Lee–Carter (default Poisson),
-    /// binomial for CBD.
+    /// Poisson for the other log-rate models, binomial for the CBD family.
     pub fn method_for(&self, kind: ModelKind) -> FitMethod {
         match kind {
             ModelKind::LeeCarter => match self.fit {
                 Some(FitMethod::Svd) => FitMethod::Svd,
                 _ => FitMethod::Poisson,
             },
-            ModelKind::Cbd => FitMethod::Binomial,
+            ModelKind::Apc | ModelKind::RenshawHaberman => FitMethod::Poisson,
+            ModelKind::Cbd | ModelKind::M6 | ModelKind::M7 => FitMethod::Binomial,
         }
     }
 }
@@ -610,6 +669,17 @@ impl Config {
         if m.max_iterations == 0 {
             return Err(self.err("model.max_iterations", "must be at least 1"));
         }
+        // Whether enough cohorts reach this many cells depends on the window and is the
+        // model's check; here only the value itself is judged.
+        if m.min_cohort_cells == 0 || m.min_cohort_cells > 200 {
+            return Err(self.err(
+                "model.min_cohort_cells",
+                format!(
+                    "must be between 1 and 200 cells, found {}",
+                    m.min_cohort_cells
+                ),
+            ));
+        }
 
         let p = &self.projection;
         if p.scenarios == 0 {
@@ -752,6 +822,45 @@ years = [1975, 2024]
             .to_string();
         assert!(err.contains("scenarioz"), "{err}");
         assert!(err.contains("projection"), "{err}");
+    }
+
+    #[test]
+    fn cohort_kinds_and_settings_parse() {
+        let text = format!(
+            "{MINIMAL}\n[model]\nkind = [\"apc\", \"renshaw-haberman\", \"m6\", \"m7\"]\n\
+             cohort_loading = \"unit\"\nmin_cohort_cells = 5\ncohort_series = \"ar1-trend\"\n"
+        );
+        let c = Config::parse(&text, Path::new("c.toml")).unwrap();
+        assert_eq!(
+            c.model.kinds(),
+            vec![
+                ModelKind::Apc,
+                ModelKind::RenshawHaberman,
+                ModelKind::M6,
+                ModelKind::M7
+            ]
+        );
+        assert_eq!(c.model.cohort_loading, CohortLoading::Unit);
+        assert_eq!(c.model.min_cohort_cells, 5);
+        assert_eq!(c.model.cohort_series, CohortSeriesKind::Ar1Trend);
+        assert_eq!(c.model.method_for(ModelKind::M7), FitMethod::Binomial);
+        let defaults = Config::parse(MINIMAL, Path::new("c.toml")).unwrap().model;
+        assert_eq!(defaults.min_cohort_cells, 3);
+        assert_eq!(defaults.cohort_loading, CohortLoading::Free);
+    }
+
+    #[test]
+    fn min_cohort_cells_of_zero_is_rejected() {
+        let text = format!("{MINIMAL}\n[model]\nmin_cohort_cells = 0\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("model.min_cohort_cells"), "{err}");
+        let text = format!("{MINIMAL}\n[model]\ncohort_loading = \"half\"\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("cohort_loading"), "{err}");
     }
 
     #[test]

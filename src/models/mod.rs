@@ -10,13 +10,22 @@ use serde::Serialize;
 
 use crate::data::{Population, Sex, Span};
 
+pub mod apc;
 pub mod cbd;
+pub mod cbd_cohort;
+pub mod cohort;
+pub mod glm;
 pub mod lee_carter;
 pub mod likelihood;
+pub mod renshaw_haberman;
 pub mod select;
 
+pub use apc::{Apc, ApcFit, ApcParams};
 pub use cbd::{Cbd, CbdFit, CbdParams};
+pub use cbd_cohort::{CbdCohort, CbdCohortFit, CbdCohortParams, CbdCohortVariant};
+pub use cohort::{CohortEffects, CohortGrid};
 pub use lee_carter::{LeeCarter, LeeCarterFit, LeeCarterMethod, LeeCarterParams};
+pub use renshaw_haberman::{RenshawHaberman, RenshawHabermanFit, RenshawHabermanParams};
 pub use select::{
     FitDocument, FitRecord, FitSet, ModelFit, RankEntry, TimeSeriesRecord, build_model,
     fit_population,
@@ -80,6 +89,22 @@ pub trait FittedModel: Send + Sync {
 
     /// Fitted parameters by name, as written to `fit.json`.
     fn parameters_json(&self) -> serde_json::Value;
+
+    /// The cohort index γ_c of a cohort model (`None` for period-only models). For these
+    /// models [`FittedModel::rates`] holds each age's cohort effect at its value in the
+    /// last fitted year; a projection that follows cohorts draws γ for the younger
+    /// cohorts from the index's time series and calls [`FittedModel::cohort_rates`].
+    fn cohort_effects(&self) -> Option<CohortEffects> {
+        None
+    }
+
+    /// Like [`FittedModel::rates`], with `gamma_by_age[i]` the cohort effect γ_{t−x} of
+    /// the i-th fitted age in the year of `factors`; models without a cohort effect
+    /// ignore it.
+    fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
+        let _ = gamma_by_age;
+        self.rates(factors, out);
+    }
 }
 
 /// A checked model specification that can be fitted to a population.

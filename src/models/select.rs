@@ -4,14 +4,21 @@
 //! ranked by BIC (lower is better). Lee–Carter's likelihood is Poisson on central exposure
 //! and CBD's is binomial on initial exposure, so across kinds the ranking compares two
 //! approximations to the same death counts: a guide to the choice, not a formal test.
+//! The cohort models (apc, renshaw-haberman, m6, m7) give no weight to the cells of the
+//! corner cohorts they leave out (`model.min_cohort_cells`), so their likelihood and n
+//! cover slightly fewer cells than the period models'; `observations` says how many.
 
 use serde::Serialize;
 
 use crate::data::config::{ClosureKind, FitMethod, ModelConfig, ModelKind};
 use crate::data::{Experience, Population, Sex};
 use crate::error::Result;
-use crate::models::{CbdParams, FittedModel, LeeCarterMethod, LeeCarterParams, MortalityModel};
+use crate::models::{
+    ApcParams, CbdCohortParams, CbdCohortVariant, CbdParams, FittedModel, LeeCarterMethod,
+    LeeCarterParams, MortalityModel, RenshawHabermanParams,
+};
 use crate::projection::RandomWalk;
+use crate::projection::cohort_series::CohortSeriesSummary;
 use crate::projection::random_walk::RandomWalkSummary;
 
 /// One fitted model with its period indices' random walk.
@@ -103,6 +110,9 @@ pub struct FitRecord {
     pub iterations: usize,
     /// Time-series estimates for the projection.
     pub time_series: TimeSeriesRecord,
+    /// Time-series estimates of the cohort index (cohort models only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub cohort_time_series: Option<CohortSeriesSummary>,
 }
 
 /// The period indices' time-series model and its estimates.
@@ -141,6 +151,45 @@ pub fn build_model(config: &ModelConfig, kind: ModelKind) -> Result<Box<dyn Mort
         }
         ModelKind::Cbd => Box::new(
             CbdParams {
+                closure_fit_ages: config.closure_fit_ages,
+                max_age: config.max_age,
+                tolerance: config.tolerance,
+                max_iterations: config.max_iterations,
+            }
+            .check()?,
+        ),
+        ModelKind::Apc => Box::new(
+            ApcParams {
+                min_cohort_cells: config.min_cohort_cells,
+                cohort_series: config.cohort_series,
+                closure_fit_ages: config.closure_fit_ages,
+                max_age: config.max_age,
+                tolerance: config.tolerance,
+                max_iterations: config.max_iterations,
+            }
+            .check()?,
+        ),
+        ModelKind::RenshawHaberman => Box::new(
+            RenshawHabermanParams {
+                loading: config.cohort_loading,
+                min_cohort_cells: config.min_cohort_cells,
+                cohort_series: config.cohort_series,
+                closure_fit_ages: config.closure_fit_ages,
+                max_age: config.max_age,
+                tolerance: config.tolerance,
+                max_iterations: config.max_iterations,
+            }
+            .check()?,
+        ),
+        ModelKind::M6 | ModelKind::M7 => Box::new(
+            CbdCohortParams {
+                variant: if kind == ModelKind::M6 {
+                    CbdCohortVariant::M6
+                } else {
+                    CbdCohortVariant::M7
+                },
+                min_cohort_cells: config.min_cohort_cells,
+                cohort_series: config.cohort_series,
                 closure_fit_ages: config.closure_fit_ages,
                 max_age: config.max_age,
                 tolerance: config.tolerance,
@@ -236,6 +285,7 @@ impl FitSet {
                         factors: m.factor_names(),
                         estimates: f.random_walk.summary(),
                     },
+                    cohort_time_series: m.cohort_effects().map(|c| c.series.summary()),
                 }
             })
             .collect();

@@ -22,6 +22,7 @@
 //! - The bootstrap resamples D* ~ Poisson(E^c · m̂) with m̂ = −ln(1 − q̂) from the fitted
 //!   rates (the constant-force convention), for Lee–Carter and CBD alike.
 
+pub mod cohort_series;
 pub mod engine;
 pub mod joint;
 pub mod period;
@@ -30,6 +31,7 @@ pub mod scenarios;
 pub mod streams;
 pub mod uncertainty;
 
+pub use cohort_series::CohortSeries;
 pub use engine::{OutputOptions, Shard, Written, write_projection};
 pub use joint::JointBasis;
 pub use random_walk::RandomWalk;

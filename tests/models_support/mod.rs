@@ -4,8 +4,12 @@
 use std::path::PathBuf;
 
 use nalgebra::DMatrix;
+use tailspan::data::config::{CohortLoading, CohortSeriesKind};
 use tailspan::data::{Population, Sex, Span};
-use tailspan::models::{Cbd, CbdParams, LeeCarter, LeeCarterMethod, LeeCarterParams};
+use tailspan::models::{
+    Apc, ApcParams, Cbd, CbdCohort, CbdCohortParams, CbdCohortVariant, CbdParams, LeeCarter,
+    LeeCarterMethod, LeeCarterParams, RenshawHaberman, RenshawHabermanParams,
+};
 
 /// Path of a file in tests/fixtures.
 pub fn fixture(name: &str) -> PathBuf {
@@ -103,4 +107,63 @@ pub fn relative_gap(a: &[f64], b: &[f64]) -> f64 {
         .map(|(x, y)| (x - y).abs())
         .fold(0.0, f64::max)
         / scale
+}
+
+/// The cohort reference fits made by tests/fixtures/make_cohort_fixtures.py.
+pub fn cohort_reference() -> serde_json::Value {
+    let text = std::fs::read_to_string(fixture("cohort_reference.json")).unwrap();
+    serde_json::from_str(&text).unwrap()
+}
+
+/// Age–period–cohort settings with the config defaults and a fine tolerance.
+pub fn apc() -> Apc {
+    ApcParams {
+        min_cohort_cells: 3,
+        cohort_series: CohortSeriesKind::Arima110Drift,
+        closure_fit_ages: 5,
+        max_age: 120,
+        tolerance: 1e-12,
+        max_iterations: 100,
+    }
+    .check()
+    .unwrap()
+}
+
+/// M6 or M7 settings with the config defaults and a fine tolerance.
+pub fn cbd_cohort(variant: CbdCohortVariant) -> CbdCohort {
+    CbdCohortParams {
+        variant,
+        min_cohort_cells: 3,
+        cohort_series: CohortSeriesKind::Arima110Drift,
+        closure_fit_ages: 5,
+        max_age: 120,
+        tolerance: 1e-12,
+        max_iterations: 100,
+    }
+    .check()
+    .unwrap()
+}
+
+/// Renshaw–Haberman settings with the config defaults.
+pub fn renshaw_haberman(loading: CohortLoading) -> RenshawHaberman {
+    RenshawHabermanParams {
+        loading,
+        min_cohort_cells: 3,
+        cohort_series: CohortSeriesKind::Arima110Drift,
+        closure_fit_ages: 5,
+        max_age: 120,
+        tolerance: 1e-9,
+        max_iterations: 20000,
+    }
+    .check()
+    .unwrap()
+}
+
+/// The values of `all` where `mask` is true.
+pub fn masked(all: &[f64], mask: &[bool]) -> Vec<f64> {
+    all.iter()
+        .zip(mask)
+        .filter(|(_, m)| **m)
+        .map(|(v, _)| *v)
+        .collect()
 }
