@@ -9,6 +9,7 @@ use crate::error::Result;
 
 pub mod check;
 pub mod fit;
+pub mod hedge;
 pub mod progress;
 pub mod project;
 pub mod run;
@@ -46,6 +47,8 @@ pub enum Command {
     Project(project::ProjectArgs),
     /// Value the book in every scenario; write results, capital and summary.json.
     Value(value::ValueArgs),
+    /// Price the configured longevity swaps and q-forwards.
+    Hedge(hedge::HedgeArgs),
     /// Everything the config asks for — fit, project, value, capital, hedges — and a report.
     Run(run::RunArgs),
 }
@@ -59,6 +62,7 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Fit(args) => fit::run(&args, cli.quiet),
         Command::Project(args) => project::run(&args, cli.quiet),
         Command::Value(args) => value::run(&args, cli.quiet),
+        Command::Hedge(args) => hedge::run(&args, cli.quiet),
         Command::Run(args) => run::run(&args, cli.quiet, cli.verbose),
     }
 }

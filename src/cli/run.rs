@@ -5,6 +5,7 @@ use std::path::PathBuf;
 use std::time::Instant;
 
 use crate::cli::fit::fit_and_write;
+use crate::cli::hedge::print_hedges;
 use crate::cli::progress::Progress;
 use crate::cli::value::print_summary;
 use crate::data::{Book, Config, Experience};
@@ -160,33 +161,6 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     }
     let mut out = std::io::stdout().lock();
     writeln!(out, "results in {}", config.output_folder().display())
-        .map_err(|e| Error::io("standard output", e))
-}
-
-fn print_hedges(hedges: &crate::hedge::HedgeResults) -> Result<()> {
-    use crate::hedge::evaluate::ContractSummary;
-    let money = crate::io::report::format::amount;
-    let mut text = String::new();
-    for c in &hedges.summary.contracts {
-        match c {
-            ContractSummary::Swap(s) => text.push_str(&format!(
-                "swap `{}` premium (cost of capital) {:.3} % = {}   (Sharpe {:.3} %)\n",
-                s.name,
-                100.0 * s.cost_of_capital.premium.rate,
-                money(s.cost_of_capital.premium.amount),
-                100.0 * s.sharpe.premium.rate,
-            )),
-            ContractSummary::QForward(q) => text.push_str(&format!(
-                "q-forward `{}` fixed rate {:.6} (central {:.6}), notional {}\n",
-                q.name,
-                q.fixed_rate,
-                q.central_rate,
-                money(q.notional)
-            )),
-        }
-    }
-    let mut out = std::io::stdout().lock();
-    out.write_all(text.as_bytes())
         .map_err(|e| Error::io("standard output", e))
 }
 
