@@ -135,3 +135,37 @@ fn run_writes_every_output_and_they_agree() {
     // PV histogram, two e65 fans, six q fans, lifetime charts, two residual maps at least.
     assert!(charts >= 10, "only {charts} charts");
 }
+
+#[test]
+fn hedge_prices_the_contracts_and_needs_a_hedge_section() {
+    let dir = tempfile::tempdir().unwrap();
+    let cfg = config(dir.path());
+    let output = Command::new(env!("CARGO_BIN_EXE_tailspan"))
+        .args(["hedge", cfg.to_str().unwrap(), "--quiet"])
+        .output()
+        .unwrap();
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    let out = dir.path().join("out");
+    assert!(out.join("hedge.parquet").exists() && out.join("hedge.json").exists());
+    assert!(
+        !out.join("book.parquet").exists(),
+        "hedge writes only the hedge results"
+    );
+    // Three contracts × 80 scenarios.
+    assert_eq!(column(&out.join("hedge.parquet"), "net").len(), 240);
+
+    let text = std::fs::read_to_string(&cfg).unwrap();
+    let cut = text.find("[hedge]").unwrap();
+    let end = text.find("[output]").unwrap();
+    std::fs::write(&cfg, format!("{}{}", &text[..cut], &text[end..])).unwrap();
+    let output = Command::new(env!("CARGO_BIN_EXE_tailspan"))
+        .args(["hedge", cfg.to_str().unwrap(), "--quiet"])
+        .output()
+        .unwrap();
+    assert_eq!(output.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&output.stderr).contains("hedge"));
+}
