@@ -12,6 +12,7 @@ pub mod hedge;
 pub mod io;
 pub mod life;
 pub mod models;
+pub mod pipeline;
 pub mod projection;
 pub mod risk;
 pub mod synth;

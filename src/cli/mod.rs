@@ -9,9 +9,11 @@ use crate::error::Result;
 
 pub mod check;
 pub mod fit;
+pub mod progress;
 pub mod project;
 pub mod synth;
 pub mod table;
+pub mod value;
 
 /// Stochastic longevity-risk simulator.
 #[derive(Debug, Parser)]
@@ -38,6 +40,8 @@ pub enum Command {
     Fit(fit::FitArgs),
     /// Fit the first configured model to each sex and write scenario paths to Parquet.
     Project(project::ProjectArgs),
+    /// Value the book in every scenario; write results, capital and summary.json.
+    Value(value::ValueArgs),
 }
 
 /// Runs the parsed command line.
@@ -48,5 +52,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Table(args) => table::run(&args),
         Command::Fit(args) => fit::run(&args, cli.quiet),
         Command::Project(args) => project::run(&args, cli.quiet),
+        Command::Value(args) => value::run(&args, cli.quiet),
     }
 }

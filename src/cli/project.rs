@@ -1,16 +1,14 @@
 //! `tailspan project`: fit the first configured model to each sex and write scenario paths.
 
-use std::io::{IsTerminal, Write as _};
+use std::io::Write as _;
 use std::path::PathBuf;
-use std::time::{Duration, Instant};
 
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
-
+use crate::cli::progress::Progress;
 use crate::data::{Config, Experience};
 use crate::error::{Error, Result};
+use crate::pipeline::ProjectedFits;
 use crate::projection::{
-    OutputOptions, Shard, Written, engine::ROW_GROUP_ROWS, projector_from_config, scenario_ids,
-    write_projection,
+    OutputOptions, Shard, Written, engine::ROW_GROUP_ROWS, scenario_ids, write_projection,
 };
 
 /// Arguments of `tailspan project`.
@@ -37,8 +35,8 @@ pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
         None => ids.clone(),
     };
     let experience = Experience::from_config(&config)?;
-    let mut projector = projector_from_config(&config, &experience)?;
-    let model = projector.basis().model(0).name();
+    let fits = ProjectedFits::fit(&config, &experience)?;
+    let mut projector = fits.projector(&config, &experience)?;
     let options = OutputOptions {
         folder: config.output_folder(),
         paths: config.output.paths,
@@ -46,45 +44,10 @@ pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
         shard,
         row_group_rows: ROW_GROUP_ROWS,
     };
-    let bar = Progress::new(total.end - total.start, quiet);
+    let bar = Progress::new("projecting", total.end - total.start, quiet);
     let written = write_projection(&mut projector, ids, &options, &|n| bar.advance(n))?;
     bar.finish();
-    report(&written, model)
-}
-
-/// A progress bar on standard error that appears only once a run has taken about a
-/// second, and never with `--quiet` or when standard error is not a terminal.
-struct Progress {
-    bar: ProgressBar,
-    start: Instant,
-    allowed: bool,
-}
-
-impl Progress {
-    fn new(scenarios: u64, quiet: bool) -> Progress {
-        let bar = ProgressBar::with_draw_target(Some(scenarios), ProgressDrawTarget::hidden());
-        if let Ok(style) = ProgressStyle::with_template(
-            "projecting {bar:40} {pos}/{len} scenarios, {elapsed} elapsed, about {eta} left",
-        ) {
-            bar.set_style(style);
-        }
-        Progress {
-            bar,
-            start: Instant::now(),
-            allowed: !quiet && std::io::stderr().is_terminal(),
-        }
-    }
-
-    fn advance(&self, scenarios: u64) {
-        self.bar.inc(scenarios);
-        if self.allowed && self.bar.is_hidden() && self.start.elapsed() > Duration::from_secs(1) {
-            self.bar.set_draw_target(ProgressDrawTarget::stderr());
-        }
-    }
-
-    fn finish(&self) {
-        self.bar.finish_and_clear();
-    }
+    report(&written, fits.kind)
 }
 
 fn report(written: &Written, model: &str) -> Result<()> {

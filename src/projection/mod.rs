@@ -27,7 +27,6 @@ pub mod joint;
 pub mod period;
 pub mod random_walk;
 pub mod scenarios;
-pub mod setup;
 pub mod streams;
 pub mod uncertainty;
 
@@ -35,6 +34,5 @@ pub use engine::{OutputOptions, Shard, Written, write_projection};
 pub use joint::JointBasis;
 pub use random_walk::RandomWalk;
 pub use scenarios::{Projector, ScenarioPaths, Settings, scenario_ids};
-pub use setup::projector_from_config;
 pub use streams::{Purpose, stream};
 pub use uncertainty::{BootstrapSource, Uncertainty};

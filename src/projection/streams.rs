@@ -18,6 +18,10 @@ pub enum Purpose {
     Drift,
     /// Resampled deaths of one bootstrap replicate (the stream number is the replicate).
     Bootstrap,
+    /// Individual deaths of the book's lives in one scenario.
+    Deaths,
+    /// One simulated year of population deaths for the one-year capital.
+    Experience,
 }
 
 impl Purpose {
@@ -27,6 +31,8 @@ impl Purpose {
             Purpose::Innovations => 0x696e_6e6f,
             Purpose::Drift => 0x6472_6966,
             Purpose::Bootstrap => 0x626f_6f74,
+            Purpose::Deaths => 0x6465_6174,
+            Purpose::Experience => 0x6578_7065,
         }
     }
 }

@@ -4,7 +4,9 @@
 //! shards and the one-year framework.
 
 pub mod capital;
+pub mod one_year;
 pub mod quantile;
+pub mod summary;
 
 pub use capital::{CapitalSummary, StressFigures, TailFigures};
 pub use quantile::{quantile_sorted, summarize, tvar_sorted};

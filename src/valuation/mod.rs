@@ -1,11 +1,14 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
 
 pub mod cohort;
+pub mod driver;
+pub mod files;
 pub mod lifetimes;
 pub mod portfolio;
 pub mod schedule;
 
 pub use cohort::{Cohort, LevelAdjustment, RateSurface};
+pub use driver::{DriverSettings, ScenarioResult, value_scenarios};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 pub use portfolio::{PreparedBook, ScenarioValue, Workspace};
 pub use schedule::{Basis, PaymentShape, Schedule};

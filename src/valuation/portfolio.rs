@@ -64,6 +64,7 @@ pub struct PreparedBook {
     /// Total amount of lives per shape, for the simulated cash flows.
     shape_amount: Vec<f64>,
     years: usize,
+    max_age: i32,
 }
 
 /// What one scenario gives.
@@ -215,7 +216,13 @@ impl PreparedBook {
             level,
             shape_amount,
             years,
+            max_age,
         })
+    }
+
+    /// Highest age of the rates (q = 1 there).
+    pub fn max_age(&self) -> i32 {
+        self.max_age
     }
 
     /// Policy years covered (from the valuation year to `max_age` of the youngest life).

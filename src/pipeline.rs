@@ -1,0 +1,296 @@
+//! The stages a run chains together, shared by `fit`, `project`, `value`, `hedge` and `run`.
+//!
+//! Each command needs the same first steps — the config's experience, the first configured
+//! model fitted to each sex, a projector over the joint basis — and must build them the same
+//! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
+
+use std::ops::Range;
+use std::sync::Arc;
+
+use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
+use crate::error::{Error, Result};
+use crate::io::AtomicFile;
+use crate::io::hash::{InputHash, hash_file};
+use crate::life::Fractional;
+use crate::models::{FittedModel, MortalityModel, build_model};
+use crate::projection::{BootstrapSource, OutputOptions, Projector, Settings, Uncertainty};
+use crate::risk::one_year::{Recalibration, one_year_values};
+use crate::risk::summary::{OneYearFigures, RunInfo, RunSummary};
+use crate::risk::{CapitalSummary, StressFigures};
+use crate::valuation::driver::surfaces;
+use crate::valuation::files::ValuationFiles;
+use crate::valuation::{
+    Basis, DriverSettings, LevelAdjustment, LifetimeTable, PreparedBook, ScenarioValue, Workspace,
+    value_scenarios,
+};
+
+/// The projected model fitted to each sex, with the specifications that can refit it.
+pub struct ProjectedFits {
+    /// Kind name, e.g. `lee-carter`.
+    pub kind: &'static str,
+    /// Fitted model per sex, in the config's order.
+    pub fits: Vec<(Sex, Arc<dyn FittedModel>)>,
+    /// The checked model per sex (the same spec for every sex), for refits.
+    pub specs: Vec<Arc<dyn MortalityModel>>,
+}
+
+impl ProjectedFits {
+    /// Fits the first configured model kind to each sex of `experience`.
+    pub fn fit(config: &Config, experience: &Experience) -> Result<Self> {
+        let kind = config.model.kinds()[0];
+        let mut fits = Vec::new();
+        let mut specs: Vec<Arc<dyn MortalityModel>> = Vec::new();
+        for population in &experience.populations {
+            let spec: Arc<dyn MortalityModel> = Arc::from(build_model(&config.model, kind)?);
+            fits.push((population.sex, Arc::from(spec.fit(population)?)));
+            specs.push(spec);
+        }
+        Ok(ProjectedFits {
+            kind: kind.name(),
+            fits,
+            specs,
+        })
+    }
+
+    /// A projector over these fits with the config's projection settings.
+    pub fn projector(&self, config: &Config, experience: &Experience) -> Result<Projector> {
+        let settings = Settings::from_config(&config.projection);
+        let source = matches!(settings.uncertainty, Uncertainty::Bootstrap { .. }).then(|| {
+            BootstrapSource {
+                models: self.specs.clone(),
+                populations: experience.populations.clone(),
+            }
+        });
+        let basis = crate::projection::JointBasis::new(self.fits.clone())?;
+        Projector::from_basis(Arc::new(basis), settings, source)
+    }
+}
+
+/// The book and what values it, prepared once for every scenario.
+pub struct ValuationSetup {
+    /// The book as loaded.
+    pub book: Book,
+    /// Cohorts and schedules.
+    pub prepared: PreparedBook,
+    /// Truncated lifetimes to report per cohort.
+    pub lifetimes: LifetimeTable,
+    /// Valuation year.
+    pub year: i32,
+}
+
+impl ValuationSetup {
+    /// Prepares `book` on the config's valuation basis over the projector's rates.
+    pub fn new(config: &Config, book: Book, projector: &Projector) -> Result<Self> {
+        let basis = Basis {
+            timing: config.valuation.timing,
+            frequency: config.valuation.frequency,
+            curve: DiscountCurve::from_config(config)?,
+        };
+        let ages = projector.ages();
+        let mut level = LevelAdjustment::none(ages.first, ages.last);
+        for f in &config.valuation.mortality_factors {
+            level.set(f.sex, f.ages[0], f.ages[1], f.factor);
+        }
+        let year = config.valuation_year();
+        let prepared = PreparedBook::new(
+            &book,
+            &basis,
+            level.clone(),
+            year,
+            ages.first,
+            ages.last,
+            projector.years().last,
+        )
+        .map_err(|e| match e {
+            Error::Config { key, rule, .. } => Error::config(&config.file, key, rule),
+            other => other,
+        })?;
+        let lifetimes = LifetimeTable::new(
+            &book,
+            &config.valuation.horizons,
+            &basis,
+            level,
+            Fractional::Udd,
+            year,
+            ages.last,
+        );
+        Ok(ValuationSetup {
+            book,
+            prepared,
+            lifetimes,
+            year,
+        })
+    }
+
+    /// The book's expected PV on the central path with every q multiplied by `scale`.
+    pub fn central_value(&self, projector: &Projector, scale: f64) -> Result<f64> {
+        let mut paths = projector.buffer();
+        projector.generate(0, &mut paths)?;
+        let mut ws = Workspace::default();
+        self.prepared
+            .build_scaled_curves(&surfaces(&paths), scale, &mut ws)?;
+        let mut value = ScenarioValue::default();
+        self.prepared
+            .value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);
+        Ok(value.pv_expected)
+    }
+}
+
+/// What the valuation of a run (or of one shard) gives.
+#[derive(Debug, Default)]
+pub struct ValuationOutcome {
+    /// Scenario 0 (the central path), if it was in the range valued.
+    pub central: Option<ScenarioValue>,
+    /// Scenario numbers of the stochastic scenarios valued, in order.
+    pub scenarios: Vec<u64>,
+    /// Their trend-only PVs.
+    pub pv_expected: Vec<f64>,
+    /// Their PVs with deaths simulated (empty without idiosyncratic risk).
+    pub pv_simulated: Vec<f64>,
+    /// Their full values, when kept for the hedges.
+    pub values: Vec<ScenarioValue>,
+    /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario.
+    pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
+}
+
+/// Values the book in scenarios `ids`, writing the valuation files to `options` and
+/// keeping the per-scenario figures (and the full values when `keep_values`).
+pub fn value_book(
+    config: &Config,
+    setup: &ValuationSetup,
+    projector: &Projector,
+    ids: Range<u64>,
+    options: &OutputOptions,
+    keep_values: bool,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<(ValuationOutcome, Vec<AtomicFile>)> {
+    let settings = DriverSettings {
+        seed: config.projection.seed,
+        idiosyncratic: config.valuation.idiosyncratic,
+    };
+    let mut files = ValuationFiles::create(options, setup.year, true)?;
+    let mut outcome = ValuationOutcome::default();
+    value_scenarios(
+        projector,
+        &setup.prepared,
+        Some(&setup.lifetimes),
+        ids,
+        settings,
+        |chunk| {
+            files.write(chunk)?;
+            for r in chunk {
+                if r.scenario == 0 {
+                    outcome.central = Some(r.value.clone());
+                    continue;
+                }
+                outcome.scenarios.push(r.scenario);
+                outcome.pv_expected.push(r.value.pv_expected);
+                if settings.idiosyncratic {
+                    outcome.pv_simulated.push(r.value.pv_simulated);
+                }
+                for row in r
+                    .lifetimes
+                    .iter()
+                    .filter(|l| l.horizon as i32 == l_whole(l, setup))
+                {
+                    let key = (row.sex, row.age);
+                    match outcome.lifetimes.iter_mut().find(|(k, _)| *k == key) {
+                        Some((_, v)) => v.push(row.e_complete),
+                        None => outcome.lifetimes.push((key, vec![row.e_complete])),
+                    }
+                }
+                if keep_values {
+                    outcome.values.push(r.value.clone());
+                }
+            }
+            progress(chunk.len() as u64);
+            Ok(())
+        },
+    )?;
+    Ok((outcome, files.close()?))
+}
+
+/// The whole-future horizon of a lifetime row's cohort.
+fn l_whole(row: &crate::valuation::LifetimeRow, setup: &ValuationSetup) -> i32 {
+    setup.prepared.max_age() - row.age + 1
+}
+
+/// The config and every input it names, hashed for the record.
+pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
+    let mut paths = vec![config.file.clone(), config.resolve(&config.data.experience)];
+    if let Some(book) = &config.data.book {
+        paths.push(config.resolve(book));
+    }
+    if let Some(curve) = &config.valuation.curve {
+        paths.push(config.resolve(curve));
+    }
+    paths.iter().map(|p| hash_file(p)).collect()
+}
+
+/// The figures of `summary.json` from a whole run's valuation: capital, the
+/// standard-formula stress, and (when configured) one-year capital by re-calibration.
+pub fn summarize(
+    config: &Config,
+    fits: &ProjectedFits,
+    experience: &Experience,
+    setup: &ValuationSetup,
+    projector: &Projector,
+    outcome: &ValuationOutcome,
+) -> Result<RunSummary> {
+    let central = outcome
+        .central
+        .as_ref()
+        .ok_or_else(|| Error::model("valuation", "the central path (scenario 0) was not valued"))?;
+    let best_estimate = central.pv_expected;
+    let levels = &config.capital.levels;
+    // Without noise the central path is the only scenario; its figures stand alone.
+    let (trend_values, simulated_values) = if outcome.pv_expected.is_empty() {
+        let simulated = if config.valuation.idiosyncratic {
+            vec![central.pv_simulated]
+        } else {
+            Vec::new()
+        };
+        (vec![best_estimate], simulated)
+    } else {
+        (outcome.pv_expected.clone(), outcome.pv_simulated.clone())
+    };
+    let trend = CapitalSummary::new(&trend_values, best_estimate, levels);
+    let trend_idiosyncratic = (!simulated_values.is_empty())
+        .then(|| CapitalSummary::new(&simulated_values, best_estimate, levels));
+    let decrease = config.capital.standard_stress;
+    let stressed = setup.central_value(projector, 1.0 - decrease)?;
+    let one_year = if config.capital.one_year && config.projection.noise {
+        let recalibration = Recalibration {
+            specs: &fits.specs,
+            populations: &experience.populations,
+            year: setup.year,
+        };
+        let values = one_year_values(
+            projector,
+            &setup.prepared,
+            &recalibration,
+            config.capital.one_year_scenarios,
+        )?;
+        let level = levels.iter().copied().fold(0.0, f64::max);
+        Some(OneYearFigures::new(&values, best_estimate, level))
+    } else {
+        None
+    };
+    Ok(RunSummary {
+        run: RunInfo {
+            tool: "tailspan",
+            version: crate::VERSION,
+            seed: config.projection.seed,
+            scenarios: outcome.pv_expected.len(),
+            model: fits.kind.to_string(),
+            valuation_year: setup.year,
+            inputs: input_hashes(config)?,
+        },
+        best_estimate,
+        trend,
+        trend_idiosyncratic,
+        standard_stress: StressFigures::new(decrease, best_estimate, stressed),
+        one_year,
+        hedges: None,
+    })
+}

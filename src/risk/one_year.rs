@@ -1,0 +1,175 @@
+//! One-year longevity capital by re-calibration (Richards, Currie & Ritchie, "A
+//! value-at-risk framework for longevity trend risk", British Actuarial Journal, 2014).
+//!
+//! Per scenario: follow the stochastic path to the valuation year, simulate that year's
+//! population deaths from it, refit the model with the new year added, re-estimate the
+//! random walk and project its central path, then value the book with the realised rates
+//! for the first year and the refitted best estimate after it. The 99.5 % quantile of
+//! those values less the best estimate is the one-year capital: what one year's news can
+//! do to the best estimate, as a regulator's one-year horizon asks.
+//!
+//! Choices: the new year's exposure is the last observed year's, age by age (common
+//! simplification); deaths are Poisson with the path's central rate m = −ln(1 − q); the
+//! one-year scenarios use the same projection streams as the run-off scenarios of the same
+//! number (common random numbers), and their deaths a stream of their own.
+
+use std::sync::Arc;
+
+use nalgebra::DMatrix;
+use rand_distr::{Distribution, Poisson};
+use rayon::prelude::*;
+
+use crate::data::Population;
+use crate::error::{Error, Result};
+use crate::models::{FittedModel, MortalityModel};
+use crate::projection::{JointBasis, Projector, Purpose, Settings, Uncertainty, stream};
+use crate::valuation::cohort::{RateSurface, sex_index};
+use crate::valuation::{PreparedBook, ScenarioValue, Workspace};
+
+/// What the re-calibration needs beyond the projector and the book.
+pub struct Recalibration<'a> {
+    /// The model specification per sex, in the projector's sex order.
+    pub specs: &'a [Arc<dyn MortalityModel>],
+    /// The fitted experience per sex, in the projector's sex order.
+    pub populations: &'a [Population],
+    /// The valuation year (the year of simulated experience is the years after the data
+    /// up to and including it).
+    pub year: i32,
+}
+
+/// Values of the book after one year of news, one per scenario `1..=scenarios`.
+pub fn one_year_values(
+    projector: &Projector,
+    book: &PreparedBook,
+    recalibration: &Recalibration<'_>,
+    scenarios: usize,
+) -> Result<Vec<f64>> {
+    (1..=scenarios as u64)
+        .into_par_iter()
+        .map_init(
+            || projector.buffer(),
+            |paths, scenario| {
+                projector.generate(scenario, paths)?;
+                one_scenario(projector, book, recalibration, paths, scenario)
+            },
+        )
+        .collect()
+}
+
+fn one_scenario(
+    projector: &Projector,
+    book: &PreparedBook,
+    recalibration: &Recalibration<'_>,
+    paths: &crate::projection::ScenarioPaths,
+    scenario: u64,
+) -> Result<f64> {
+    let basis = projector.basis();
+    let settings = projector.settings();
+    let last_fitted = basis.years().last;
+    let new_years = recalibration.year - last_fitted;
+    if new_years < 1 {
+        return Err(Error::model(
+            "one-year",
+            "the valuation year must follow the last fitted year",
+        ));
+    }
+    let mut rng = stream(settings.seed, scenario, Purpose::Experience);
+    let mut refits: Vec<(crate::data::Sex, Arc<dyn FittedModel>)> = Vec::new();
+    for (i, &sex) in basis.sexes().iter().enumerate() {
+        let population = &recalibration.populations[i];
+        let extended = extend(population, paths, i, new_years, &mut rng)?;
+        let refit = recalibration.specs[i].fit(&extended)?;
+        refits.push((sex, Arc::from(refit)));
+    }
+    // The refitted central path: no noise, no parameter uncertainty.
+    let central = Projector::from_basis(
+        Arc::new(JointBasis::new(refits)?),
+        Settings {
+            seed: settings.seed,
+            horizon: settings.horizon,
+            noise: false,
+            uncertainty: Uncertainty::None,
+        },
+        None,
+    )?;
+    let mut refitted = central.buffer();
+    central.generate(0, &mut refitted)?;
+    // Rates from the valuation year: the realised year, then the refitted best estimate.
+    let ages = paths.ages().len();
+    let mut hybrid: Vec<Vec<f64>> = Vec::with_capacity(basis.sexes().len());
+    for i in 0..basis.sexes().len() {
+        let realised = paths.year_rates(i, recalibration.year).ok_or_else(|| {
+            Error::model(
+                "one-year",
+                "the projection does not reach the valuation year",
+            )
+        })?;
+        let mut rows = Vec::with_capacity(ages * (1 + settings.horizon));
+        rows.extend_from_slice(realised);
+        rows.extend_from_slice(refitted.rates(i));
+        hybrid.push(rows);
+    }
+    let mut surfaces: [Option<RateSurface<'_>>; 2] = [None, None];
+    for (i, &sex) in basis.sexes().iter().enumerate() {
+        surfaces[sex_index(sex)] = Some(RateSurface {
+            first_year: recalibration.year,
+            first_age: paths.ages().first,
+            ages,
+            q: &hybrid[i],
+        });
+    }
+    let mut ws = Workspace::default();
+    let mut value = ScenarioValue::default();
+    book.build_curves(&surfaces, &mut ws)?;
+    book.value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);
+    Ok(value.pv_expected)
+}
+
+/// The population with `new_years` simulated years appended: deaths Poisson with mean
+/// E × m from the scenario's path, exposure that of the last observed year.
+fn extend(
+    population: &Population,
+    paths: &crate::projection::ScenarioPaths,
+    sex_slot: usize,
+    new_years: i32,
+    rng: &mut rand_chacha::ChaCha8Rng,
+) -> Result<Population> {
+    let (n_ages, n_years) = (population.ages.len(), population.years.len());
+    let total = n_years + new_years as usize;
+    let mut deaths = DMatrix::zeros(n_ages, total);
+    let mut exposure = DMatrix::zeros(n_ages, total);
+    deaths
+        .view_mut((0, 0), (n_ages, n_years))
+        .copy_from(&population.deaths);
+    exposure
+        .view_mut((0, 0), (n_ages, n_years))
+        .copy_from(&population.exposure);
+    let last = n_years - 1;
+    for step in 0..new_years as usize {
+        let year = population.years.last + 1 + step as i32;
+        for (i, age) in population.ages.iter().enumerate() {
+            let e = population.exposure[(i, last)];
+            let q = paths.q(sex_slot, year, age).ok_or_else(|| {
+                Error::model(
+                    "one-year",
+                    format!("no projected rate for age {age} in {year}"),
+                )
+            })?;
+            let mean = e * -(-q).ln_1p();
+            let d = if mean > 0.0 && mean.is_finite() {
+                Poisson::new(mean)
+                    .map_err(|e| Error::Numerical(format!("one-year deaths: {e}")))?
+                    .sample(rng)
+            } else {
+                0.0
+            };
+            deaths[(i, n_years + step)] = d;
+            exposure[(i, n_years + step)] = e;
+        }
+    }
+    let years = crate::data::Span {
+        first: population.years.first,
+        last: population.years.last + new_years,
+    };
+    Population::new(population.sex, population.ages, years, deaths, exposure)
+}

@@ -1,0 +1,210 @@
+//! The valuation's Parquet outputs, streamed chunk by chunk in scenario order.
+//!
+//! `book.parquet` (`scenario, pv_expected, pv_simulated`), `cashflows.parquet`
+//! (`scenario, year, expected, simulated`) and `lifetimes.parquet` (`scenario, sex, age,
+//! horizon, e_complete, e_curtate, annuity`). Key columns use the same types as the
+//! projection's files (scenario UInt32, year and age Int16, sex a plain string) so the files
+//! join without casts. Simulated columns are null when individual deaths are not simulated.
+//! All three are closed together and committed only when the run has succeeded.
+
+use std::sync::Arc;
+
+use arrow_array::{ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array};
+use arrow_schema::{DataType, Field, Schema, SchemaRef};
+
+use crate::data::config::Compression;
+use crate::error::{Error, Result};
+use crate::io::AtomicFile;
+use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink};
+use crate::projection::OutputOptions;
+use crate::valuation::driver::ScenarioResult;
+
+const BOOK_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
+    pv_expected: present value of the book's benefits given the scenario's path (trend \
+    risk only); pv_simulated: present value with each life's death simulated (trend and \
+    idiosyncratic risk), null when not simulated";
+const CASHFLOWS_DESCRIPTION: &str = "scenario: scenario number; year: calendar year of \
+    payment (policy year k from the valuation year); expected: expected benefits given the \
+    path; simulated: benefits paid with deaths simulated, null when not simulated";
+const LIFETIMES_DESCRIPTION: &str = "scenario: scenario number; sex: F or M; age: age at \
+    the valuation date; horizon: n in years (the largest is the whole future to max_age); \
+    e_complete: E[min(T, n)]; e_curtate: E[min(K, n)]; annuity: n-year temporary annuity \
+    on the valuation basis";
+
+/// The valuation files being written.
+pub struct ValuationFiles {
+    book: ParquetSink,
+    cashflows: ParquetSink,
+    lifetimes: Option<ParquetSink>,
+    valuation_year: i32,
+}
+
+fn schema(fields: Vec<Field>) -> SchemaRef {
+    Arc::new(Schema::new(fields))
+}
+
+fn book_schema() -> SchemaRef {
+    schema(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        Field::new("pv_expected", DataType::Float64, false),
+        Field::new("pv_simulated", DataType::Float64, true),
+    ])
+}
+
+fn cashflows_schema() -> SchemaRef {
+    schema(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        Field::new("year", DataType::Int16, false),
+        Field::new("expected", DataType::Float64, false),
+        Field::new("simulated", DataType::Float64, true),
+    ])
+}
+
+fn lifetimes_schema() -> SchemaRef {
+    schema(vec![
+        Field::new("scenario", DataType::UInt32, false),
+        Field::new("sex", DataType::Utf8, false),
+        Field::new("age", DataType::Int16, false),
+        Field::new("horizon", DataType::Int16, false),
+        Field::new("e_complete", DataType::Float64, false),
+        Field::new("e_curtate", DataType::Float64, false),
+        Field::new("annuity", DataType::Float64, false),
+    ])
+}
+
+fn sink(
+    options: &OutputOptions,
+    stem: &str,
+    schema: SchemaRef,
+    compression: Compression,
+    description: &str,
+) -> Result<ParquetSink> {
+    ParquetSink::create(
+        options.file(stem),
+        schema,
+        compression,
+        description,
+        DEFAULT_ROWS_PER_GROUP,
+    )
+}
+
+fn batch(schema: &SchemaRef, columns: Vec<ArrayRef>, stem: &str) -> Result<RecordBatch> {
+    RecordBatch::try_new(Arc::clone(schema), columns).map_err(|e| Error::Parquet {
+        path: stem.into(),
+        message: e.to_string(),
+    })
+}
+
+fn simulated(value: f64) -> Option<f64> {
+    (!value.is_nan()).then_some(value)
+}
+
+impl ValuationFiles {
+    /// Opens the files in `options.folder` (shard names when sharded).
+    pub fn create(options: &OutputOptions, valuation_year: i32, lifetimes: bool) -> Result<Self> {
+        let c = options.compression;
+        Ok(ValuationFiles {
+            book: sink(options, "book", book_schema(), c, BOOK_DESCRIPTION)?,
+            cashflows: sink(
+                options,
+                "cashflows",
+                cashflows_schema(),
+                c,
+                CASHFLOWS_DESCRIPTION,
+            )?,
+            lifetimes: if lifetimes {
+                Some(sink(
+                    options,
+                    "lifetimes",
+                    lifetimes_schema(),
+                    c,
+                    LIFETIMES_DESCRIPTION,
+                )?)
+            } else {
+                None
+            },
+            valuation_year,
+        })
+    }
+
+    /// Appends one chunk of results (in scenario order).
+    pub fn write(&mut self, results: &[ScenarioResult]) -> Result<()> {
+        let ids: Vec<u32> = results.iter().map(|r| r.scenario as u32).collect();
+        let schema = book_schema();
+        self.book.write(&batch(
+            &schema,
+            vec![
+                Arc::new(UInt32Array::from(ids)),
+                Arc::new(Float64Array::from_iter_values(
+                    results.iter().map(|r| r.value.pv_expected),
+                )),
+                Arc::new(Float64Array::from_iter(
+                    results.iter().map(|r| simulated(r.value.pv_simulated)),
+                )),
+            ],
+            "book",
+        )?)?;
+
+        let (mut scenario, mut year, mut expected, mut sim) = (vec![], vec![], vec![], vec![]);
+        for r in results {
+            for (k, &e) in r.value.cash_expected.iter().enumerate() {
+                scenario.push(r.scenario as u32);
+                year.push((self.valuation_year + k as i32) as i16);
+                expected.push(e);
+                sim.push(r.value.cash_simulated.get(k).copied());
+            }
+        }
+        let schema = cashflows_schema();
+        self.cashflows.write(&batch(
+            &schema,
+            vec![
+                Arc::new(UInt32Array::from(scenario)),
+                Arc::new(Int16Array::from(year)),
+                Arc::new(Float64Array::from(expected)),
+                Arc::new(Float64Array::from(sim)),
+            ],
+            "cashflows",
+        )?)?;
+
+        if let Some(sink) = self.lifetimes.as_mut() {
+            let rows = results
+                .iter()
+                .flat_map(|r| r.lifetimes.iter().map(move |l| (r.scenario, l)));
+            let (mut s, mut sex, mut age, mut horizon, mut ec, mut ek, mut an) =
+                (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+            for (id, l) in rows {
+                s.push(id as u32);
+                sex.push(l.sex.code());
+                age.push(l.age as i16);
+                horizon.push(l.horizon as i16);
+                ec.push(l.e_complete);
+                ek.push(l.e_curtate);
+                an.push(l.annuity);
+            }
+            let schema = lifetimes_schema();
+            sink.write(&batch(
+                &schema,
+                vec![
+                    Arc::new(UInt32Array::from(s)),
+                    Arc::new(StringArray::from(sex)),
+                    Arc::new(Int16Array::from(age)),
+                    Arc::new(Int16Array::from(horizon)),
+                    Arc::new(Float64Array::from(ec)),
+                    Arc::new(Float64Array::from(ek)),
+                    Arc::new(Float64Array::from(an)),
+                ],
+                "lifetimes",
+            )?)?;
+        }
+        Ok(())
+    }
+
+    /// Writes the footers; the files stay under temporary names until committed.
+    pub fn close(self) -> Result<Vec<AtomicFile>> {
+        let mut files = vec![self.book.close()?, self.cashflows.close()?];
+        if let Some(l) = self.lifetimes {
+            files.push(l.close()?);
+        }
+        Ok(files)
+    }
+}
