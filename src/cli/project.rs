@@ -2,15 +2,13 @@
 
 use std::io::Write as _;
 use std::path::PathBuf;
-use std::sync::Arc;
 
 use crate::cli::progress::Progress;
-use crate::data::{Config, Experience, Sex};
+use crate::data::{Config, Experience};
 use crate::error::{Error, Result};
-use crate::models::{FittedModel, MortalityModel, build_model};
+use crate::pipeline::ProjectedFits;
 use crate::projection::{
-    BootstrapSource, OutputOptions, Projector, Settings, Shard, Uncertainty, Written,
-    engine::ROW_GROUP_ROWS, scenario_ids, write_projection,
+    OutputOptions, Shard, Written, engine::ROW_GROUP_ROWS, scenario_ids, write_projection,
 };
 
 /// Arguments of `tailspan project`.
@@ -30,22 +28,15 @@ pub struct ProjectArgs {
 pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     let config = Config::load(&args.config)?;
+    // The shard is checked against the run's scenarios before the (slower) fit.
+    let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
+    let total = match shard {
+        Some(s) => s.range(ids.clone())?,
+        None => ids.clone(),
+    };
     let experience = Experience::from_config(&config)?;
-    let kind = config.model.kinds()[0];
-    let mut fits: Vec<(Sex, Box<dyn FittedModel>)> = Vec::new();
-    let mut specs: Vec<Arc<dyn MortalityModel>> = Vec::new();
-    for population in &experience.populations {
-        let spec: Arc<dyn MortalityModel> = Arc::from(build_model(&config.model, kind)?);
-        fits.push((population.sex, spec.fit(population)?));
-        specs.push(spec);
-    }
-    let settings = Settings::from_config(&config.projection);
-    let source =
-        matches!(settings.uncertainty, Uncertainty::Bootstrap { .. }).then(|| BootstrapSource {
-            models: specs,
-            populations: experience.populations.clone(),
-        });
-    let mut projector = Projector::new(fits, settings, source)?;
+    let fits = ProjectedFits::fit(&config, &experience)?;
+    let mut projector = fits.projector(&config, &experience)?;
     let options = OutputOptions {
         folder: config.output_folder(),
         paths: config.output.paths,
@@ -53,15 +44,10 @@ pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
         shard,
         row_group_rows: ROW_GROUP_ROWS,
     };
-    let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
-    let total = match shard {
-        Some(s) => s.range(ids.clone())?,
-        None => ids.clone(),
-    };
     let bar = Progress::new("projecting", total.end - total.start, quiet);
     let written = write_projection(&mut projector, ids, &options, &|n| bar.advance(n))?;
     bar.finish();
-    report(&written, kind.name())
+    report(&written, fits.kind)
 }
 
 fn report(written: &Written, model: &str) -> Result<()> {
