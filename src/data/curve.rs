@@ -5,6 +5,7 @@
 //! 300 % would silently wipe out the book's value.
 
 use std::fmt;
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use crate::data::Config;
@@ -41,7 +42,13 @@ impl DiscountCurve {
     /// Reads a spot-rate CSV `term,rate`: terms in years, > 0 and strictly increasing;
     /// annual effective rates above −1 and at most 25 % in size.
     pub fn load(path: &Path) -> Result<DiscountCurve> {
-        let table = Table::read(path, &CURVE_COLUMNS, &[])?;
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        DiscountCurve::from_reader(path, file)
+    }
+
+    /// As [`DiscountCurve::load`] on any reader; `path` names the input in messages.
+    pub fn from_reader(path: &Path, reader: impl Read) -> Result<DiscountCurve> {
+        let table = Table::from_reader(reader, path, &CURVE_COLUMNS, &[])?;
         if table.is_empty() {
             return Err(table.file_error("no rates after the header"));
         }
