@@ -22,14 +22,14 @@ pub const CSV_NAME: &str = "fuzz/input.csv";
 pub const CONFIG_NAME: &str = "fuzz/config.toml";
 
 /// Fitting windows the experience is read with: the window of the small good file in
-/// tests/bad/good/, a single cell of one sex, and no sex at all (every row is checked but
-/// none kept, so any well-formed file is accepted).
+/// tests/bad/good/, a single cell of one sex, and no sex at all (every row is still checked
+/// but none is kept, so any well-formed file is accepted).
 pub fn experience_windows() -> [(Span, Span, &'static [Sex]); 3] {
     let span = |a, b| Span::new(a, b).expect("ordered span");
     [
         (span(60, 62), span(2000, 2002), &Sex::ALL),
         (span(60, 60), span(2000, 2000), &[Sex::M]),
-        (span(0, MAX_AGE), span(1700, 2300), &[]),
+        (span(60, 60), span(2000, 2000), &[]),
     ]
 }
 
@@ -81,7 +81,11 @@ pub fn assert_book(book: &Book, path: &Path) {
         assert!(!p.id.is_empty(), "empty id");
         assert!(ids.insert(p.id.as_str()), "duplicate id {}", p.id);
         assert!((0..=MAX_AGE).contains(&p.age), "age {}", p.age);
-        assert!(p.amount.is_finite() && p.amount > 0.0, "amount {}", p.amount);
+        assert!(
+            p.amount.is_finite() && p.amount > 0.0,
+            "amount {}",
+            p.amount
+        );
         assert!(
             i64::from(p.age) + i64::from(p.deferral) <= i64::from(MAX_AGE),
             "deferral {} from age {}",
@@ -90,7 +94,11 @@ pub fn assert_book(book: &Book, path: &Path) {
         );
         if let Some(term) = p.term {
             assert!((1..=MAX_AGE as u32).contains(&term), "term {term}");
-            assert!(p.guarantee <= term, "guarantee {} > term {term}", p.guarantee);
+            assert!(
+                p.guarantee <= term,
+                "guarantee {} > term {term}",
+                p.guarantee
+            );
         }
         assert!(p.guarantee <= MAX_AGE as u32, "guarantee {}", p.guarantee);
         assert!(
@@ -98,7 +106,11 @@ pub fn assert_book(book: &Book, path: &Path) {
             "escalation {}",
             p.escalation
         );
-        assert!(p.weight.is_finite() && p.weight > 0.0, "weight {}", p.weight);
+        assert!(
+            p.weight.is_finite() && p.weight > 0.0,
+            "weight {}",
+            p.weight
+        );
         assert!(
             p.mortality_factor.is_finite()
                 && p.mortality_factor > 0.0
@@ -137,7 +149,10 @@ pub fn assert_curve(curve: &DiscountCurve, path: &Path) {
         .chain([0.0, 0.25, 1.0, last + 1.0, 130.0]);
     for t in times {
         let s = curve.spot_rate(t);
-        assert!(lo <= s && s <= hi, "spot rate {s} at {t} outside [{lo}, {hi}]");
+        assert!(
+            lo <= s && s <= hi,
+            "spot rate {s} at {t} outside [{lo}, {hi}]"
+        );
         let v = curve.discount(t);
         assert!(v.is_finite() && v > 0.0, "discount factor {v} at {t}");
     }
@@ -165,7 +180,11 @@ pub fn assert_config(c: &Config, path: &Path) {
     assert_eq!(c.file, path);
     assert_eq!(c.base, path.parent().unwrap());
     let d = &c.data;
-    assert!(0 <= d.ages[0] && d.ages[0] < d.ages[1] && d.ages[1] <= MAX_AGE, "{:?}", d.ages);
+    assert!(
+        0 <= d.ages[0] && d.ages[0] < d.ages[1] && d.ages[1] <= MAX_AGE,
+        "{:?}",
+        d.ages
+    );
     assert!(
         1700 <= d.years[0] && d.years[0] + 2 <= d.years[1] && d.years[1] <= 2300,
         "{:?}",
@@ -176,7 +195,11 @@ pub fn assert_config(c: &Config, path: &Path) {
 
     let m = &c.model;
     assert!(!m.kinds().is_empty());
-    assert!(d.ages[1] < m.max_age && m.max_age <= MAX_AGE, "max_age {}", m.max_age);
+    assert!(
+        d.ages[1] < m.max_age && m.max_age <= MAX_AGE,
+        "max_age {}",
+        m.max_age
+    );
     let n_ages = c.ages().len();
     assert!((2..=n_ages).contains(&m.closure_fit_ages));
     assert!(m.tolerance.is_finite() && m.tolerance > 0.0);
@@ -187,7 +210,10 @@ pub fn assert_config(c: &Config, path: &Path) {
     assert!((1..=200).contains(&p.horizon));
     let last_year = d.years[1] + p.horizon as i32;
     let year = c.valuation_year();
-    assert!(d.years[1] < year && year <= last_year, "valuation year {year}");
+    assert!(
+        d.years[1] < year && year <= last_year,
+        "valuation year {year}"
+    );
 
     let v = &c.valuation;
     assert!((1..=365).contains(&v.frequency));
@@ -204,7 +230,11 @@ pub fn assert_config(c: &Config, path: &Path) {
     }
 
     let k = &c.capital;
-    assert!(k.levels.iter().all(|l| *l > 0.0 && *l < 1.0), "{:?}", k.levels);
+    assert!(
+        k.levels.iter().all(|l| *l > 0.0 && *l < 1.0),
+        "{:?}",
+        k.levels
+    );
     assert!((0.0..1.0).contains(&k.standard_stress));
     assert!(!k.one_year || k.one_year_scenarios >= 1);
 
