@@ -51,3 +51,23 @@ fn an_empty_table_name_is_named_as_the_top_level() {
     assert!(err.contains("config key `(top level)`"), "{err}");
     assert!(err.contains("unknown field"), "{err}");
 }
+
+#[test]
+fn an_absurd_curve_term_is_refused() {
+    // A term of 1.2e81 years was accepted, and the curve discounted it to exactly 0. No cash
+    // flow lies beyond 131 years; such a number is a date or a term in months or days.
+    let dir = tempfile::tempdir().unwrap();
+    for term in [
+        "1222222222222222222222222222222222222222222",
+        "20250101",
+        "360",
+    ] {
+        let path = dir.path().join("curve.csv");
+        std::fs::write(&path, format!("term,rate\n1,0.02\n{term},0.02033\n")).unwrap();
+        let err = tailspan::data::DiscountCurve::load(&path)
+            .expect_err(term)
+            .to_string();
+        assert!(err.contains("row 3, column `term`"), "{term}: {err}");
+        assert!(err.contains("at most 300"), "{term}: {err}");
+    }
+}

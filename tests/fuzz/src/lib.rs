@@ -10,7 +10,7 @@ use std::path::Path;
 use tailspan::data::book::{MAX_ESCALATION, MAX_MORTALITY_FACTOR};
 use tailspan::data::config::Config;
 use tailspan::data::csv_input::MAX_AGE;
-use tailspan::data::curve::MAX_RATE;
+use tailspan::data::curve::{MAX_RATE, MAX_TERM};
 use tailspan::data::{Book, DiscountCurve, Experience, Sex, Span};
 use tailspan::error::Error;
 use tailspan::hedge::{NotionalChoice, PremiumChoice};
@@ -121,7 +121,7 @@ pub fn assert_book(book: &Book, path: &Path) {
     }
 }
 
-/// Asserts an accepted curve has strictly increasing positive terms and plausible rates,
+/// Asserts an accepted curve has strictly increasing terms in (0, 300] and plausible rates,
 /// and that it discounts every time to a finite positive factor.
 pub fn assert_curve(curve: &DiscountCurve, path: &Path) {
     let DiscountCurve::Spot {
@@ -135,7 +135,10 @@ pub fn assert_curve(curve: &DiscountCurve, path: &Path) {
     assert_eq!(source, path);
     assert!(!terms.is_empty());
     assert_eq!(terms.len(), rates.len());
-    assert!(terms.iter().all(|t| t.is_finite() && *t > 0.0), "{terms:?}");
+    assert!(
+        terms.iter().all(|t| *t > 0.0 && *t <= MAX_TERM),
+        "{terms:?}"
+    );
     assert!(terms.windows(2).all(|w| w[0] < w[1]), "terms {terms:?}");
     for &r in rates {
         assert!(r.is_finite() && r > -1.0 && r.abs() <= MAX_RATE, "rate {r}");
