@@ -9,6 +9,7 @@
 //! An empty optional field takes the default (an empty `term` is whole life).
 
 use std::collections::HashMap;
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use crate::data::csv_input::{self, MAX_AGE, Row, Table};
@@ -95,7 +96,14 @@ impl Book {
     /// ±25 % (3 meaning 3 % gets a hint), weights or mortality factors that are not
     /// positive (or mortality factors above 10), an empty book, and unknown columns.
     pub fn load(path: &Path) -> Result<Book> {
-        let table = Table::read(path, &BOOK_REQUIRED, &BOOK_OPTIONAL)?;
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        Book::from_reader(path, file)
+    }
+
+    /// As [`Book::load`] on any reader; `path` names the input in messages and is kept as
+    /// [`Book::source`].
+    pub fn from_reader(path: &Path, reader: impl Read) -> Result<Book> {
+        let table = Table::from_reader(reader, path, &BOOK_REQUIRED, &BOOK_OPTIONAL)?;
         if table.is_empty() {
             return Err(table.file_error("empty book: no policies after the header"));
         }

@@ -534,7 +534,7 @@ impl Config {
             let key = e.path().to_string();
             let inner = e.into_inner();
             let message = inner.message().trim().to_string();
-            let key = if key == "." {
+            let key = if key == "." || key.is_empty() {
                 "(top level)".to_string()
             } else {
                 key
@@ -543,8 +543,10 @@ impl Config {
         })?;
         config.file = path.to_path_buf();
         if config.model.closure_fit_ages == CLOSURE_FIT_AGES_UNSET {
-            let n_ages = (config.data.ages[1] - config.data.ages[0] + 1).max(2) as usize;
-            config.model.closure_fit_ages = DEFAULT_CLOSURE_FIT_AGES.min(n_ages);
+            // In i64: the ages are not checked yet, and their difference may not fit an i32.
+            let n_ages = i64::from(config.data.ages[1]) - i64::from(config.data.ages[0]) + 1;
+            config.model.closure_fit_ages =
+                n_ages.clamp(2, DEFAULT_CLOSURE_FIT_AGES as i64) as usize;
         }
         config.base = path
             .parent()

@@ -7,6 +7,7 @@
 //! misspelt optional column cannot fall back to its default.
 
 use std::collections::HashMap;
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use crate::error::{Error, Result};
@@ -44,7 +45,21 @@ impl Table {
     /// only columns from `required` and `optional` (names compared ignoring case), and that
     /// each row has one field per column.
     pub fn read(path: &Path, required: &[&str], optional: &[&str]) -> Result<Table> {
-        let bytes = std::fs::read(path).map_err(|e| Error::io(path, e))?;
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        Table::from_reader(file, path, required, optional)
+    }
+
+    /// As [`Table::read`] on any reader (a file, a buffer); `path` is used for messages.
+    pub fn from_reader(
+        mut reader: impl Read,
+        path: &Path,
+        required: &[&str],
+        optional: &[&str],
+    ) -> Result<Table> {
+        let mut bytes = Vec::new();
+        reader
+            .read_to_end(&mut bytes)
+            .map_err(|e| Error::io(path, e))?;
         Table::parse(&bytes, path, required, optional)
     }
 

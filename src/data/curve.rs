@@ -5,6 +5,7 @@
 //! 300 % would silently wipe out the book's value.
 
 use std::fmt;
+use std::io::Read;
 use std::path::{Path, PathBuf};
 
 use crate::data::Config;
@@ -16,6 +17,10 @@ pub const CURVE_COLUMNS: [&str; 2] = ["term", "rate"];
 
 /// Largest absolute annual rate accepted; larger values are taken for percentages.
 pub const MAX_RATE: f64 = 0.25;
+
+/// Longest term accepted, in years. No cash flow lies further out (payments stop by age 130),
+/// so a larger number is a date, or a term in months or days, and would be misread.
+pub const MAX_TERM: f64 = 300.0;
 
 /// A discount curve: v(t) for any time t ≥ 0 in years.
 #[derive(Debug, Clone, PartialEq)]
@@ -30,7 +35,7 @@ pub enum DiscountCurve {
     Spot {
         /// The file it came from.
         source: PathBuf,
-        /// Terms in years, strictly increasing, all > 0.
+        /// Terms in years, strictly increasing, all in (0, [`MAX_TERM`]].
         terms: Vec<f64>,
         /// Spot rates at those terms.
         rates: Vec<f64>,
@@ -38,10 +43,16 @@ pub enum DiscountCurve {
 }
 
 impl DiscountCurve {
-    /// Reads a spot-rate CSV `term,rate`: terms in years, > 0 and strictly increasing;
+    /// Reads a spot-rate CSV `term,rate`: terms in years, in (0, 300] and strictly increasing;
     /// annual effective rates above −1 and at most 25 % in size.
     pub fn load(path: &Path) -> Result<DiscountCurve> {
-        let table = Table::read(path, &CURVE_COLUMNS, &[])?;
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        DiscountCurve::from_reader(path, file)
+    }
+
+    /// As [`DiscountCurve::load`] on any reader; `path` names the input in messages.
+    pub fn from_reader(path: &Path, reader: impl Read) -> Result<DiscountCurve> {
+        let table = Table::from_reader(reader, path, &CURVE_COLUMNS, &[])?;
         if table.is_empty() {
             return Err(table.file_error("no rates after the header"));
         }
@@ -51,6 +62,14 @@ impl DiscountCurve {
             let term = row.number("term")?;
             if term <= 0.0 {
                 return Err(row.error("term", format!("must be above 0 years, found {term}")));
+            }
+            if term > MAX_TERM {
+                return Err(row.error(
+                    "term",
+                    format!(
+                        "{term} years is implausible: terms are in years, at most {MAX_TERM} (a date, or a term in months or days?)"
+                    ),
+                ));
             }
             if let Some(&previous) = terms.last()
                 && term <= previous

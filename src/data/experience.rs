@@ -13,6 +13,7 @@
 //! unknown age or date over cells, and the Poisson and binomial likelihoods accept that.
 
 use std::collections::HashMap;
+use std::io::Read;
 use std::ops::RangeInclusive;
 use std::path::{Path, PathBuf};
 
@@ -154,7 +155,20 @@ impl Experience {
     /// non-negative), whole ages in 0..=130 and years in 1700..=2300, sex codes, duplicate
     /// cells, and deaths with zero exposure. Errors name the file, line and column.
     pub fn load(path: &Path, ages: Span, years: Span, sexes: &[Sex]) -> Result<Experience> {
-        let table = Table::read(path, &EXPERIENCE_COLUMNS, &[])?;
+        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
+        Experience::from_reader(path, file, ages, years, sexes)
+    }
+
+    /// As [`Experience::load`] on any reader; `path` names the input in messages and is
+    /// kept as [`Experience::source`].
+    pub fn from_reader(
+        path: &Path,
+        reader: impl Read,
+        ages: Span,
+        years: Span,
+        sexes: &[Sex],
+    ) -> Result<Experience> {
+        let table = Table::from_reader(reader, path, &EXPERIENCE_COLUMNS, &[])?;
         if table.is_empty() {
             return Err(table.file_error("no data rows after the header"));
         }

@@ -242,8 +242,9 @@ impl HedgeConfig {
                 if term == 0 {
                     return Err(err(format!("{key}.term"), "must be at least 1 year".into()));
                 }
-                let end = year + term as i32 - 1;
-                if end > last_year {
+                // In i64: a term near u32::MAX does not fit an i32 year.
+                let end = i64::from(year) + i64::from(term) - 1;
+                if end > i64::from(last_year) {
                     return Err(err(
                         format!("{key}.term"),
                         format!(
