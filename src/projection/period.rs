@@ -3,6 +3,9 @@
 //! A fan of e°65 over the projection shows at a glance whether the scenarios are plausible
 //! before anything is valued.
 
+use crate::life::Fractional;
+use crate::life::table::complete_expectation;
+
 /// Age at which the period expectation is reported.
 pub const PERIOD_AGE: i32 = 65;
 
@@ -10,14 +13,7 @@ pub const PERIOD_AGE: i32 = 65;
 /// of interest to `max_age` (where q is 1):
 /// e° = Σ_k (k p + k+1 p) / 2, since under UDD ∫_k^{k+1} t p dt is the mean of its ends.
 pub fn complete_expectancy(q: &[f64]) -> f64 {
-    let mut survival = 1.0;
-    let mut total = 0.0;
-    for &qx in q {
-        let next = survival * (1.0 - qx);
-        total += 0.5 * (survival + next);
-        survival = next;
-    }
-    total
+    complete_expectation(q, Fractional::Udd)
 }
 
 #[cfg(test)]
