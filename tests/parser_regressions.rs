@@ -71,3 +71,13 @@ fn an_absurd_curve_term_is_refused() {
         assert!(err.contains("at most 300"), "{term}: {err}");
     }
 }
+
+#[test]
+fn a_huge_weight_is_refused_before_any_life_is_simulated() {
+    // Each life on a row is simulated one by one, so 1e20 lives would exhaust memory.
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("book.csv");
+    std::fs::write(&path, "id,sex,age,amount,weight\nP1,F,70,1000,1e20\n").unwrap();
+    let err = tailspan::data::Book::load(&path).unwrap_err().to_string();
+    assert!(err.contains("row 2") && err.contains("weight"), "{err}");
+}

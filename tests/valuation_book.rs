@@ -302,3 +302,28 @@ fn standard_stress_raises_every_annuity() {
         );
     }
 }
+
+#[test]
+fn guarantees_outlive_the_table() {
+    // A 5-year certain period paid to a life aged 118 (q = 1 at 120): at 0 % the five
+    // certain payments are worth exactly 5 whatever the mortality (definition of a
+    // guarantee); the schedule must not stop at the table's end.
+    let q = surface(sult(), 0.0);
+    let mut p = Policy::whole_life("g", Sex::F, 118, 1.0);
+    p.guarantee = 5;
+    let book = Book {
+        source: "".into(),
+        policies: vec![p],
+    };
+    for (timing, m) in [(Timing::Advance, 1), (Timing::Arrears, 12)] {
+        let prepared = prepared(&book, timing, m, 0.0);
+        let v = expected_value(&prepared, &q);
+        assert!(
+            (v.pv_expected - 5.0).abs() < 1e-12,
+            "{timing:?}: {}",
+            v.pv_expected
+        );
+        let paid: f64 = v.cash_expected.iter().sum();
+        assert!((paid - 5.0).abs() < 1e-12, "cash flows sum to {paid}");
+    }
+}

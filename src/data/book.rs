@@ -281,6 +281,14 @@ fn read_policy(row: &Row<'_>) -> Result<Policy> {
         ));
     }
     let weight = positive(row, "weight", "lives represented by the row")?;
+    if weight > MAX_WEIGHT {
+        return Err(row.error(
+            "weight",
+            format!(
+                "{weight} lives on one row is implausible: at most {MAX_WEIGHT} (each life's death is simulated; split the row)"
+            ),
+        ));
+    }
     let mortality_factor = positive(row, "mortality_factor", "multiplier of the population q")?;
     if mortality_factor > MAX_MORTALITY_FACTOR {
         return Err(row.error(
@@ -319,6 +327,9 @@ fn years(row: &Row<'_>, column: &str) -> Result<Option<u32>> {
 }
 
 /// An optional positive multiplier, default 1.
+/// Largest `weight` of one row: every life on it is simulated one by one.
+const MAX_WEIGHT: f64 = 1_000_000.0;
+
 fn positive(row: &Row<'_>, column: &str, what: &str) -> Result<f64> {
     let value = row.optional_number(column)?.unwrap_or(1.0);
     if value <= 0.0 {

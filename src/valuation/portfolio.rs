@@ -127,8 +127,17 @@ impl PreparedBook {
                 ),
             });
         }
-        let years = (max_age - youngest + 1) as usize;
-        let needed = year + years as i32 - 1;
+        // Rates are needed to the youngest life's max_age; guaranteed payments can run
+        // beyond it (a certain period outlives the table), so the schedules cover both.
+        let rate_years = (max_age - youngest + 1) as usize;
+        let certain_years = book
+            .policies
+            .iter()
+            .map(|p| (p.deferral + p.guarantee) as usize)
+            .max()
+            .unwrap_or(0);
+        let years = rate_years.max(certain_years);
+        let needed = year + rate_years as i32 - 1;
         if needed > last_year {
             return Err(Error::config(
                 "",
