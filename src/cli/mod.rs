@@ -9,6 +9,7 @@ use crate::error::Result;
 
 pub mod check;
 pub mod fit;
+pub mod merge;
 pub mod progress;
 pub mod project;
 pub mod synth;
@@ -42,6 +43,8 @@ pub enum Command {
     Project(project::ProjectArgs),
     /// Value the book in every scenario; write results, capital and summary.json.
     Value(value::ValueArgs),
+    /// Combine a sharded run's part files into whole files and summary.json.
+    Merge(merge::MergeArgs),
 }
 
 /// Runs the parsed command line.
@@ -53,5 +56,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Fit(args) => fit::run(&args, cli.quiet),
         Command::Project(args) => project::run(&args, cli.quiet),
         Command::Value(args) => value::run(&args, cli.quiet),
+        Command::Merge(args) => merge::run(&args),
     }
 }
