@@ -149,9 +149,17 @@ pub struct ValuationOutcome {
     pub pv_simulated: Vec<f64>,
     /// Their full values, when kept for the hedges.
     pub values: Vec<ScenarioValue>,
-    /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario.
+    /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario, for
+    /// the first [`LIFETIME_SCENARIOS_KEPT`] scenarios only (every scenario's are in
+    /// `lifetimes.parquet`).
     pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
 }
+
+/// Stochastic scenarios whose whole-future e°x a [`ValuationOutcome`] keeps in memory:
+/// enough for a fan chart, and a bound so that a million-scenario run's memory does not
+/// grow with its cohorts times its scenarios (the per-scenario PVs, 16 bytes each, are all
+/// that grows).
+pub const LIFETIME_SCENARIOS_KEPT: usize = 10_000;
 
 /// Values the book in scenarios `ids`, writing the valuation files to `options` and
 /// keeping the per-scenario figures (and the full values when `keep_values`).
@@ -188,10 +196,11 @@ pub fn value_book(
                 if settings.idiosyncratic {
                     outcome.pv_simulated.push(r.value.pv_simulated);
                 }
+                let keep_lifetimes = outcome.scenarios.len() <= LIFETIME_SCENARIOS_KEPT;
                 for row in r
                     .lifetimes
                     .iter()
-                    .filter(|l| l.horizon as i32 == l_whole(l, setup))
+                    .filter(|l| keep_lifetimes && l.horizon as i32 == l_whole(l, setup))
                 {
                     let key = (row.sex, row.age);
                     match outcome.lifetimes.iter_mut().find(|(k, _)| *k == key) {

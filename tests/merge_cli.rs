@@ -22,7 +22,7 @@ fn config(dir: &Path, name: &str, folder: &str) -> PathBuf {
 experience = "{}"
 book = "{}"
 ages = [55, 100]
-years = [1995, 2024]
+years = [2005, 2024]
 
 [model]
 kind = "lee-carter"
@@ -42,7 +42,7 @@ horizons = [10, 20]
 [capital]
 levels = [0.9, 0.995]
 one_year = true
-one_year_scenarios = 6
+one_year_scenarios = 4
 
 [output]
 folder = "{folder}"
