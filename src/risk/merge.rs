@@ -19,7 +19,7 @@ use crate::data::config::Compression;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
-use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink, SCHEMA_KEY};
+use crate::io::parquet::{ParquetSink, SCHEMA_KEY};
 use crate::pipeline::{ProjectedFits, ValuationOutcome, ValuationSetup, summarize};
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{Shard, scenario_ids};
@@ -178,7 +178,7 @@ pub fn concat_parts(
 ) -> Result<AtomicFile> {
     let rows_per_group = match stem {
         "paths" | "factors" | "period" => ROW_GROUP_ROWS,
-        _ => DEFAULT_ROWS_PER_GROUP,
+        _ => crate::valuation::files::ROWS_PER_GROUP,
     };
     let mut sink: Option<ParquetSink> = None;
     let mut schema = None;
