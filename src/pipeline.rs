@@ -178,6 +178,14 @@ pub fn value_book(
     };
     let mut files = ValuationFiles::create(options, setup.year, true)?;
     let mut outcome = ValuationOutcome::default();
+    // Exact capacity: growth by doubling would hold up to twice the per-scenario figures,
+    // and three times while a grown vector is copied.
+    let n = (ids.end - ids.start) as usize;
+    outcome.scenarios.reserve_exact(n);
+    outcome.pv_expected.reserve_exact(n);
+    if settings.idiosyncratic {
+        outcome.pv_simulated.reserve_exact(n);
+    }
     value_scenarios(
         projector,
         &setup.prepared,

@@ -336,9 +336,10 @@ impl PreparedBook {
         let stride = self.years + 1;
         let mut pv = 0.0;
         for run in &self.runs {
-            let s = &ws.survival[run.cohort as usize];
+            let s = ws.survival[run.cohort as usize].as_slice();
             let guide = &ws.guide[run.cohort as usize];
             let sched = &self.schedules[run.shape as usize];
+            let lookup = sched.death_lookup();
             let row = run.shape as usize * stride;
             let dying = &mut ws.dying[row..row + stride];
             let partial = &mut ws.partial[row..row + stride];
@@ -354,11 +355,11 @@ impl PreparedBook {
                 }
                 // Under UDD the time of death within year K is linear in U.
                 let f = (s[k] - u) / (s[k] - s[k + 1]);
-                let paid = sched.payments_before(k, f);
-                run_pv += amount * sched.pv_prefix[paid];
+                let paid = lookup.payments_before(k, f);
+                run_pv += amount * lookup.pv_prefix[paid];
                 dying[k] += amount;
-                let year_start = sched.year_start[k] as usize;
-                partial[k] += amount * (sched.cash_prefix[paid] - sched.cash_prefix[year_start]);
+                let year_start = lookup.year_start[k] as usize;
+                partial[k] += amount * (lookup.cash_prefix[paid] - lookup.cash_prefix[year_start]);
             }
             let run_amount: f64 = self.amounts[run.start as usize..run.end as usize]
                 .iter()
