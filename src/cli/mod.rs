@@ -10,6 +10,7 @@ use crate::error::Result;
 pub mod check;
 pub mod fit;
 pub mod hedge;
+pub mod merge;
 pub mod progress;
 pub mod project;
 pub mod run;
@@ -51,6 +52,8 @@ pub enum Command {
     Hedge(hedge::HedgeArgs),
     /// Everything the config asks for — fit, project, value, capital, hedges — and a report.
     Run(run::RunArgs),
+    /// Combine a sharded run's part files into whole files and summary.json.
+    Merge(merge::MergeArgs),
 }
 
 /// Runs the parsed command line.
@@ -64,5 +67,6 @@ pub fn run(cli: Cli) -> Result<()> {
         Command::Value(args) => value::run(&args, cli.quiet),
         Command::Hedge(args) => hedge::run(&args, cli.quiet),
         Command::Run(args) => run::run(&args, cli.quiet, cli.verbose),
+        Command::Merge(args) => merge::run(&args),
     }
 }

@@ -159,15 +159,25 @@ pub struct ValuationOutcome {
     pub pv_simulated: Vec<f64>,
     /// Their full values, when kept for the hedges.
     pub values: Vec<ScenarioValue>,
-    /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario.
+    /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario, for
+    /// the first [`LIFETIME_SCENARIOS_KEPT`] scenarios only (every scenario's are in
+    /// `lifetimes.parquet`).
     pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
     /// The requested cells' q on the central path.
     pub central_probes: Vec<f64>,
-    /// The requested cells' q per stochastic scenario.
+    /// The requested cells' q per stochastic scenario (the first
+    /// [`LIFETIME_SCENARIOS_KEPT`] only, unless the values are kept for the hedges).
     pub probes: Vec<Vec<f64>>,
-    /// Period e°65 by sex and projected year, per stochastic scenario.
+    /// Period e°65 by sex and projected year, per stochastic scenario (the first
+    /// [`LIFETIME_SCENARIOS_KEPT`] only).
     pub period: Vec<Vec<f64>>,
 }
+
+/// Stochastic scenarios whose whole-future e°x a [`ValuationOutcome`] keeps in memory:
+/// enough for a fan chart, and a bound so that a million-scenario run's memory does not
+/// grow with its cohorts times its scenarios (the per-scenario PVs, 16 bytes each, are all
+/// that grows).
+pub const LIFETIME_SCENARIOS_KEPT: usize = 10_000;
 
 /// Which scenarios to value, where to write, and what to keep.
 pub struct ValueRequest<'a> {
@@ -203,6 +213,14 @@ pub fn value_book(
     };
     let mut files = ValuationFiles::create(options, setup.year, true)?;
     let mut outcome = ValuationOutcome::default();
+    // Exact capacity: growth by doubling would hold up to twice the per-scenario figures,
+    // and three times while a grown vector is copied.
+    let n = (ids.end - ids.start) as usize;
+    outcome.scenarios.reserve_exact(n);
+    outcome.pv_expected.reserve_exact(n);
+    if settings.idiosyncratic {
+        outcome.pv_simulated.reserve_exact(n);
+    }
     value_scenarios(
         projector,
         &setup.prepared,
@@ -218,10 +236,13 @@ pub fn value_book(
                     outcome.central_probes = r.probes.clone();
                     continue;
                 }
-                if !r.probes.is_empty() {
+                // Chart inputs are bounded like the lifetimes; the hedges need every
+                // scenario's reference cells, as they need every scenario's values.
+                let keep_charts = outcome.scenarios.len() < LIFETIME_SCENARIOS_KEPT;
+                if !r.probes.is_empty() && (keep_values || keep_charts) {
                     outcome.probes.push(r.probes.clone());
                 }
-                if !r.period.is_empty() {
+                if !r.period.is_empty() && keep_charts {
                     outcome.period.push(r.period.clone());
                 }
                 outcome.scenarios.push(r.scenario);
@@ -229,10 +250,11 @@ pub fn value_book(
                 if settings.idiosyncratic {
                     outcome.pv_simulated.push(r.value.pv_simulated);
                 }
+                let keep_lifetimes = outcome.scenarios.len() <= LIFETIME_SCENARIOS_KEPT;
                 for row in r
                     .lifetimes
                     .iter()
-                    .filter(|l| l.horizon as i32 == l_whole(l, setup))
+                    .filter(|l| keep_lifetimes && l.horizon as i32 == l_whole(l, setup))
                 {
                     let key = (row.sex, row.age);
                     match outcome.lifetimes.iter_mut().find(|(k, _)| *k == key) {

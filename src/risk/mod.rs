@@ -4,6 +4,7 @@
 //! shards and the one-year framework.
 
 pub mod capital;
+pub mod merge;
 pub mod one_year;
 pub mod quantile;
 pub mod summary;

@@ -15,7 +15,7 @@ use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
-use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink};
+use crate::io::parquet::ParquetSink;
 use crate::projection::OutputOptions;
 use crate::valuation::driver::ScenarioResult;
 
@@ -30,6 +30,12 @@ const LIFETIMES_DESCRIPTION: &str = "scenario: scenario number; sex: F or M; age
     the valuation date; horizon: n in years (the largest is the whole future to max_age); \
     e_complete: E[min(T, n)]; e_curtate: E[min(K, n)]; annuity: n-year temporary annuity \
     on the valuation basis";
+
+/// Rows per row group of the valuation files. The writer holds a whole row group in memory
+/// before it flushes, so this bounds memory whatever the scenario count: 2^17 rows of
+/// `lifetimes` are about 6 MB, and a million-scenario run keeps the footprint of a
+/// ten-thousand-scenario one; groups this size still compress and scan well.
+pub const ROWS_PER_GROUP: usize = 1 << 17;
 
 /// The valuation files being written.
 pub struct ValuationFiles {
@@ -84,7 +90,7 @@ fn sink(
         schema,
         compression,
         description,
-        DEFAULT_ROWS_PER_GROUP,
+        ROWS_PER_GROUP,
     )
 }
 

@@ -172,13 +172,19 @@ impl Schedule {
     /// x86-64).
     #[inline]
     pub fn payments_before(&self, k: usize, f: f64) -> usize {
-        let start = self.year_start[k] as usize;
-        let in_year = self.year_start[k + 1] as usize - start;
-        // i32 conversions are single instructions; usize ones are not before AVX-512.
-        let x = f * self.frequency;
-        let whole = x as i32;
-        let ceil = whole + i32::from(f64::from(whole) < x);
-        start + ((ceil - self.arrears_offset).max(0) as usize).min(in_year)
+        self.death_lookup().payments_before(k, f)
+    }
+
+    /// The tables the simulation of deaths reads, borrowed once per run of lives.
+    #[inline]
+    pub fn death_lookup(&self) -> DeathLookup<'_> {
+        DeathLookup {
+            year_start: &self.year_start,
+            pv_prefix: &self.pv_prefix,
+            cash_prefix: &self.cash_prefix,
+            frequency: self.frequency,
+            arrears_offset: self.arrears_offset,
+        }
     }
 
     /// Expected present value per unit amount given survival `survival[k] = k p x` and
@@ -194,6 +200,36 @@ impl Schedule {
     }
 }
 
+/// A schedule's death-time tables as plain slices. Held in locals for a run of lives, their
+/// pointers stay in registers: read through the schedule, they were reloaded after every
+/// store to the simulation's accumulators, which the compiler could not prove apart.
+#[derive(Debug, Clone, Copy)]
+pub struct DeathLookup<'a> {
+    /// See [`Schedule::year_start`].
+    pub year_start: &'a [u32],
+    /// See [`Schedule::pv_prefix`].
+    pub pv_prefix: &'a [f64],
+    /// See [`Schedule::cash_prefix`].
+    pub cash_prefix: &'a [f64],
+    /// Payments a year.
+    pub frequency: f64,
+    /// 1 in arrears, 0 in advance.
+    pub arrears_offset: i32,
+}
+
+impl DeathLookup<'_> {
+    /// As [`Schedule::payments_before`].
+    #[inline]
+    pub fn payments_before(&self, k: usize, f: f64) -> usize {
+        let start = self.year_start[k] as usize;
+        let in_year = self.year_start[k + 1] as usize - start;
+        // i32 conversions are single instructions; usize ones are not before AVX-512.
+        let x = f * self.frequency;
+        let whole = x as i32;
+        let ceil = whole + i32::from(f64::from(whole) < x);
+        start + ((ceil - self.arrears_offset).max(0) as usize).min(in_year)
+    }
+}
 /// (1 + e)^⌊t⌋: escalation applies from each whole year after the valuation date.
 fn escalation_factor(escalation: f64, t: f64) -> f64 {
     if escalation == 0.0 {
