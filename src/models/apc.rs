@@ -21,6 +21,7 @@ use crate::data::config::CohortSeriesKind;
 use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
+use crate::models::check_fit_settings;
 use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family};
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
@@ -79,21 +80,7 @@ pub(crate) fn check_common(
     closure_fit_ages: usize,
     min_cohort_cells: usize,
 ) -> Result<()> {
-    if !(tolerance.is_finite() && tolerance > 0.0) {
-        return Err(Error::model(
-            name,
-            format!("tolerance must be positive, found {tolerance}"),
-        ));
-    }
-    if max_iterations == 0 {
-        return Err(Error::model(name, "max_iterations must be at least 1"));
-    }
-    if closure_fit_ages < 2 {
-        return Err(Error::model(
-            name,
-            "the closure needs at least two fitted ages (closure_fit_ages)",
-        ));
-    }
+    check_fit_settings(name, tolerance, max_iterations, closure_fit_ages)?;
     if min_cohort_cells == 0 {
         return Err(Error::model(name, "min_cohort_cells must be at least 1"));
     }

@@ -13,6 +13,7 @@ use nalgebra::DMatrix;
 use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
+use crate::models::check_fit_settings;
 use crate::models::likelihood::{binomial_deviance, binomial_log_likelihood, deviance_residual};
 use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
 
@@ -55,21 +56,12 @@ pub struct CbdFit {
 impl CbdParams {
     /// Checks the settings that do not depend on the data.
     pub fn check(self) -> Result<Cbd> {
-        if !(self.tolerance.is_finite() && self.tolerance > 0.0) {
-            return Err(Error::model(
-                NAME,
-                format!("tolerance must be positive, found {}", self.tolerance),
-            ));
-        }
-        if self.max_iterations == 0 {
-            return Err(Error::model(NAME, "max_iterations must be at least 1"));
-        }
-        if self.closure_fit_ages < 2 {
-            return Err(Error::model(
-                NAME,
-                "the closure needs at least two fitted ages (closure_fit_ages)",
-            ));
-        }
+        check_fit_settings(
+            NAME,
+            self.tolerance,
+            self.max_iterations,
+            self.closure_fit_ages,
+        )?;
         Ok(Cbd { params: self })
     }
 }

@@ -13,6 +13,7 @@ use nalgebra::{DMatrix, DVector};
 use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
+use crate::models::check_fit_settings;
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
 use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
 
@@ -84,21 +85,12 @@ pub struct LeeCarterFit {
 impl LeeCarterParams {
     /// Checks the settings that do not depend on the data.
     pub fn check(self) -> Result<LeeCarter> {
-        if !(self.tolerance.is_finite() && self.tolerance > 0.0) {
-            return Err(Error::model(
-                NAME,
-                format!("tolerance must be positive, found {}", self.tolerance),
-            ));
-        }
-        if self.max_iterations == 0 {
-            return Err(Error::model(NAME, "max_iterations must be at least 1"));
-        }
-        if self.closure_fit_ages < 2 {
-            return Err(Error::model(
-                NAME,
-                "the closure needs at least two fitted ages (closure_fit_ages)",
-            ));
-        }
+        check_fit_settings(
+            NAME,
+            self.tolerance,
+            self.max_iterations,
+            self.closure_fit_ages,
+        )?;
         if self.refit_kt && self.method == LeeCarterMethod::Poisson {
             return Err(Error::model(
                 NAME,

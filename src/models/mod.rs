@@ -112,3 +112,31 @@ pub trait MortalityModel: Send + Sync {
     /// Fits the model to one population.
     fn fit(&self, population: &Population) -> crate::Result<Box<dyn FittedModel>>;
 }
+
+/// Checks the fit settings every model shares; errors name the model `name`.
+pub(crate) fn check_fit_settings(
+    name: &str,
+    tolerance: f64,
+    max_iterations: usize,
+    closure_fit_ages: usize,
+) -> crate::Result<()> {
+    if !(tolerance.is_finite() && tolerance > 0.0) {
+        return Err(crate::Error::model(
+            name,
+            format!("tolerance must be positive, found {tolerance}"),
+        ));
+    }
+    if max_iterations == 0 {
+        return Err(crate::Error::model(
+            name,
+            "max_iterations must be at least 1",
+        ));
+    }
+    if closure_fit_ages < 2 {
+        return Err(crate::Error::model(
+            name,
+            "the closure needs at least two fitted ages (closure_fit_ages)",
+        ));
+    }
+    Ok(())
+}
