@@ -251,11 +251,9 @@ pub fn value_book(
                     outcome.pv_simulated.push(r.value.pv_simulated);
                 }
                 let keep_lifetimes = outcome.scenarios.len() <= LIFETIME_SCENARIOS_KEPT;
-                for row in r
-                    .lifetimes
-                    .iter()
-                    .filter(|l| keep_lifetimes && l.horizon as i32 == l_whole(l, setup))
-                {
+                for row in r.lifetimes.iter().filter(|l| {
+                    keep_lifetimes && l.horizon as i32 == whole_future_horizon(l, setup)
+                }) {
                     let key = (row.sex, row.age);
                     match outcome.lifetimes.iter_mut().find(|(k, _)| *k == key) {
                         Some((_, v)) => v.push(row.e_complete),
@@ -274,7 +272,7 @@ pub fn value_book(
 }
 
 /// The whole-future horizon of a lifetime row's cohort.
-fn l_whole(row: &crate::valuation::LifetimeRow, setup: &ValuationSetup) -> i32 {
+fn whole_future_horizon(row: &crate::valuation::LifetimeRow, setup: &ValuationSetup) -> i32 {
     setup.prepared.max_age() - row.age + 1
 }
 

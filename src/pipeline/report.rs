@@ -324,6 +324,7 @@ fn fans(inputs: &ReportInputs<'_>, outcome: &ValuationOutcome) -> Vec<FanChart> 
     let mut offset = inputs.probe_offset;
     for (i, population) in inputs.experience.populations.iter().enumerate() {
         let sex = config.data.sexes[i];
+        let crude = population.central_rates();
         for age in FAN_AGES
             .iter()
             .copied()
@@ -346,7 +347,7 @@ fn fans(inputs: &ReportInputs<'_>, outcome: &ValuationOutcome) -> Vec<FanChart> 
                     .enumerate()
                     .map(|(j, year)| YearValue {
                         year,
-                        value: -(-population.central_rates()[(a, j)]).exp_m1(),
+                        value: -(-crude[(a, j)]).exp_m1(),
                     })
                     .collect(),
                 None => Vec::new(),
