@@ -67,6 +67,9 @@ pub struct ApcFit {
     pub grid: CohortGrid,
     /// Cohort effects, every cohort of the grid (left-out ones filled).
     pub cohorts: CohortEffects,
+    /// γ_{T−x} by fitted age in the last fitted year T, held by [`FittedModel::rates`];
+    /// kept so that `rates` allocates nothing.
+    last_year_gamma: Vec<f64>,
     closure: KannistoClosure,
     diagnostics: FitDiagnostics,
     residuals: DMatrix<f64>,
@@ -223,6 +226,7 @@ impl Apc {
             ax,
             kt,
             grid,
+            last_year_gamma: cohorts.by_age(years.last, ages.first),
             cohorts,
             closure: KannistoClosure {
                 fit_ages: p.closure_fit_ages,
@@ -311,8 +315,7 @@ impl FittedModel for ApcFit {
     /// Rates with the cohort effects of the last fitted year's cohorts frozen: age x takes
     /// γ of the cohort born in `years().last − x`, whatever year the indices belong to.
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
-        let frozen = self.cohorts.by_age(self.years.last, self.ages.first);
-        self.cohort_rates(factors, &frozen, out);
+        self.cohort_rates(factors, &self.last_year_gamma, out);
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {

@@ -96,6 +96,9 @@ pub struct CbdCohortFit {
     pub grid: CohortGrid,
     /// Cohort effects, every cohort of the grid (left-out ones filled).
     pub cohorts: CohortEffects,
+    /// γ_{T−x} by fitted age in the last fitted year T, held by [`FittedModel::rates`];
+    /// kept so that `rates` allocates nothing.
+    last_year_gamma: Vec<f64>,
     closure: KannistoClosure,
     diagnostics: FitDiagnostics,
     residuals: DMatrix<f64>,
@@ -226,6 +229,7 @@ impl CbdCohort {
             sigma2,
             factors,
             grid,
+            last_year_gamma: cohorts.by_age(years.last, ages.first),
             cohorts,
             closure: KannistoClosure {
                 fit_ages: p.closure_fit_ages,
@@ -335,8 +339,7 @@ impl FittedModel for CbdCohortFit {
     /// Rates with the cohort effects of the last fitted year's cohorts frozen: age x takes
     /// γ of the cohort born in `years().last − x`, whatever year the indices belong to.
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
-        let frozen = self.cohorts.by_age(self.years.last, self.ages.first);
-        self.cohort_rates(factors, &frozen, out);
+        self.cohort_rates(factors, &self.last_year_gamma, out);
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {

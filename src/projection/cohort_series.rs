@@ -12,6 +12,12 @@
 //!   the position of cohort c in the series; the trend slope per birth year is μ1/(1 − φ).
 //!
 //! ε_c ~ N(0, σ²). The log-likelihood is the conditional one, −m/2 (ln 2πσ² + 1).
+//!
+//! Under drift uncertainty a scenario redraws the deterministic terms (μ0, and μ1 for the
+//! trend form) from their estimation distribution given φ̂, N(β̂, σ̂² (XᵀX)⁻¹) over the
+//! intercept (and trend) columns only: with φ known the drift of an AR(1) is estimated as
+//! a random walk's is, and φ itself is held, since a draw near 1 would make the youngest
+//! cohorts' γ explode.
 
 use nalgebra::{Matrix3, Vector3};
 use serde::Serialize;
@@ -36,8 +42,21 @@ pub struct CohortSeries {
     pub observations: usize,
     /// Conditional log-likelihood.
     pub log_likelihood: f64,
+    /// Lower Cholesky factor of the covariance of (μ0, μ1) given φ, σ̂² (X_AᵀX_A)⁻¹
+    /// (the μ1 row and column are zero for ARIMA(1,1,0)).
+    pub terms_factor: [[f64; 2]; 2],
     /// The series the model was fitted to (oldest cohort first).
     history: Vec<f64>,
+}
+
+/// The deterministic terms of a cohort series' recursion: estimated, or drawn for one
+/// scenario under drift uncertainty.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SeriesTerms {
+    /// Intercept μ0.
+    pub intercept: f64,
+    /// Trend coefficient μ1 per position (0 for ARIMA(1,1,0)).
+    pub trend: f64,
 }
 
 /// The estimates as written to `fit.json`.
@@ -149,6 +168,7 @@ impl CohortSeries {
         } else {
             f64::INFINITY
         };
+        let terms_factor = terms_factor(&rows, width, sigma2);
         Ok(CohortSeries {
             kind,
             intercept: beta[0],
@@ -157,35 +177,86 @@ impl CohortSeries {
             sigma2,
             observations: m,
             log_likelihood,
+            terms_factor,
             history: gamma.to_vec(),
         })
+    }
+
+    /// The regression residuals ε̂ (one per observation, oldest first).
+    pub fn residuals(&self) -> Vec<f64> {
+        let g = &self.history;
+        match self.kind {
+            CohortSeriesKind::Arima110Drift => {
+                let diff: Vec<f64> = g.windows(2).map(|w| w[1] - w[0]).collect();
+                diff.windows(2)
+                    .map(|w| w[1] - self.intercept - self.phi * w[0])
+                    .collect()
+            }
+            CohortSeriesKind::Ar1Trend => (1..g.len())
+                .map(|i| g[i] - self.intercept - self.phi * g[i - 1] - self.trend * (i + 1) as f64)
+                .collect(),
+        }
+    }
+
+    /// The estimated deterministic terms.
+    pub fn terms(&self) -> SeriesTerms {
+        SeriesTerms {
+            intercept: self.intercept,
+            trend: self.trend,
+        }
+    }
+
+    /// The terms μ̂ + L z for standard normal `z`, L = [`CohortSeries::terms_factor`].
+    pub fn drawn_terms(&self, z: [f64; 2]) -> SeriesTerms {
+        let l = &self.terms_factor;
+        SeriesTerms {
+            intercept: self.intercept + l[0][0] * z[0],
+            trend: self.trend + l[1][0] * z[0] + l[1][1] * z[1],
+        }
+    }
+
+    /// Number of cohort values the series was fitted to.
+    pub fn len(&self) -> usize {
+        self.history.len()
+    }
+
+    /// Whether the series holds no values (never true for a fitted series).
+    pub fn is_empty(&self) -> bool {
+        self.history.is_empty()
     }
 
     /// The next `shocks.len()` cohort values after the fitted history, with innovation
     /// σ·`shocks[h]` in step h: zero shocks give the central projection, standard normal
     /// shocks a simulated path.
     pub fn project(&self, shocks: &[f64]) -> Vec<f64> {
+        let mut values = shocks.to_vec();
+        self.project_into(self.terms(), &mut values);
+        values
+    }
+
+    /// In place: `values` holds standard normal shocks on entry and the next
+    /// `values.len()` cohort values after the fitted history on return, under `terms`.
+    /// Allocates nothing, for the per-scenario projection.
+    pub fn project_into(&self, terms: SeriesTerms, values: &mut [f64]) {
         let sigma = self.sigma2.sqrt();
         let n = self.history.len();
         let mut last = self.history[n - 1];
         let mut last_diff = self.history[n - 1] - self.history[n - 2];
         let mut position = n as f64;
-        shocks
-            .iter()
-            .map(|z| {
-                position += 1.0;
-                match self.kind {
-                    CohortSeriesKind::Arima110Drift => {
-                        last_diff = self.intercept + self.phi * last_diff + sigma * z;
-                        last += last_diff;
-                    }
-                    CohortSeriesKind::Ar1Trend => {
-                        last = self.intercept + self.trend * position + self.phi * last + sigma * z;
-                    }
+        for v in values.iter_mut() {
+            let z = *v;
+            position += 1.0;
+            match self.kind {
+                CohortSeriesKind::Arima110Drift => {
+                    last_diff = terms.intercept + self.phi * last_diff + sigma * z;
+                    last += last_diff;
                 }
-                last
-            })
-            .collect()
+                CohortSeriesKind::Ar1Trend => {
+                    last = terms.intercept + terms.trend * position + self.phi * last + sigma * z;
+                }
+            }
+            *v = last;
+        }
     }
 
     /// The estimates for `fit.json`.
@@ -211,6 +282,27 @@ impl CohortSeries {
             log_likelihood: self.log_likelihood,
         }
     }
+}
+
+/// Cholesky factor of σ² (X_AᵀX_A)⁻¹ over the intercept (and trend) regressors of `rows`.
+fn terms_factor(rows: &[(f64, [f64; 3])], width: usize, sigma2: f64) -> [[f64; 2]; 2] {
+    let m = rows.len() as f64;
+    if width == 2 {
+        return [[(sigma2 / m).sqrt(), 0.0], [0.0, 0.0]];
+    }
+    let (s1, s2) = rows
+        .iter()
+        .fold((0.0, 0.0), |(a, b), (_, x)| (a + x[2], b + x[2] * x[2]));
+    // Inverse of [[m, s1], [s1, s2]] times σ², then its 2 × 2 Cholesky factor.
+    let det = m * s2 - s1 * s1;
+    let (v00, v01, v11) = (sigma2 * s2 / det, -sigma2 * s1 / det, sigma2 * m / det);
+    if !(det > 0.0 && v00 > 0.0) {
+        return [[0.0, 0.0], [0.0, 0.0]];
+    }
+    let l00 = v00.sqrt();
+    let l10 = v01 / l00;
+    let l11 = (v11 - l10 * l10).max(0.0).sqrt();
+    [[l00, 0.0], [l10, l11]]
 }
 
 #[cfg(test)]

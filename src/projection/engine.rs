@@ -22,6 +22,9 @@ use crate::io::parquet::{ColumnLayout, EncodedRowGroup, RowGroupEncoder, RowGrou
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
 
+/// Factor name of the cohort index rows in `factors.parquet` (their `year` is the birth year).
+pub const GAMMA: &str = "gamma";
+
 /// Default rows of `paths.parquet` per row group (about); a chunk holds whole scenarios.
 /// Half a million rows keeps each worker's buffers near 10 MB and row groups large enough
 /// to read efficiently.
@@ -172,8 +175,9 @@ const PATHS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central pat
     q: one-year probability of death; m (log-rate models only): central rate -ln(1 - q), \
     null where q = 1";
 const FACTORS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
-    sex: F or M; year: projected calendar year; factor: period index name (k, k1, k2); \
-    value: the projected index";
+    sex: F or M; year: projected calendar year, or birth year for factor gamma; \
+    factor: period index name (k, k1, k2, k3) or gamma, the cohort index of cohort models \
+    for the cohorts each scenario draws; value: the projected index";
 const PERIOD_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
     sex: F or M; year: projected calendar year; \
     e65: period complete expectation of life at 65 from that year's rates, under UDD";
@@ -264,6 +268,8 @@ struct Layout {
     factor_labels: Vec<&'static str>,
     /// Offset of each sex's first index name in `factor_labels`.
     factor_offsets: Vec<usize>,
+    /// Position of `gamma` in `factor_labels` (cohort models only).
+    gamma_label: Option<usize>,
     paths: bool,
     central_rates: bool,
     period_index: Option<usize>,
@@ -371,6 +377,15 @@ fn append_scenario(
                 e65.push(e);
             }
         }
+        // The drawn cohort index, keyed by birth year, after the sex's period indices.
+        if let (Some(c), Some(label)) = (buf.cohort(i), layout.gamma_label) {
+            for (j, &g) in c.gamma().iter().enumerate() {
+                cols.factors
+                    .push(scenario, i, c.first_cohort() + j as i32, 1);
+                cols.factor_keys.push(label as i8);
+                cols.factor_values.push(g);
+            }
+        }
     }
     Ok(())
 }
@@ -398,11 +413,16 @@ pub fn write_projection(
         factor_offsets.push(factor_names.len());
         factor_names.extend(model.factor_names().iter().copied());
     }
+    let gamma_label = basis.cohorts().any().then(|| {
+        factor_names.push(GAMMA);
+        factor_names.len() - 1
+    });
     let ages = projector.ages();
     let layout = Layout {
         sex_labels: basis.sexes().iter().map(|s| s.code()).collect(),
         factor_labels: factor_names,
         factor_offsets,
+        gamma_label,
         paths: options.paths,
         central_rates,
         period_index: ages.index(PERIOD_AGE),

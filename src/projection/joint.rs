@@ -10,6 +10,7 @@ use std::sync::Arc;
 
 use nalgebra::{DMatrix, DVector};
 
+use crate::projection::cohort_paths::CohortBasis;
 use crate::projection::random_walk::RandomWalk;
 
 use crate::data::{Sex, Span};
@@ -24,6 +25,7 @@ pub struct JointBasis {
     offsets: Vec<usize>,
     last: DVector<f64>,
     walk: RandomWalk,
+    cohorts: CohortBasis,
 }
 
 impl std::fmt::Debug for JointBasis {
@@ -97,13 +99,15 @@ impl JointBasis {
         // columns by the estimator, so such a history still projects.
         let walk = RandomWalk::estimate(&history)?;
         let last = history.column(years.len() - 1).into_owned();
-        let (sexes, models) = fits.into_iter().unzip();
+        let (sexes, models): (Vec<Sex>, Vec<Arc<dyn FittedModel>>) = fits.into_iter().unzip();
+        let cohorts = CohortBasis::new(&models)?;
         Ok(JointBasis {
             sexes,
             models,
             offsets,
             last,
             walk,
+            cohorts,
         })
     }
 
@@ -140,6 +144,11 @@ impl JointBasis {
     /// The joint random-walk estimate.
     pub fn walk(&self) -> &RandomWalk {
         &self.walk
+    }
+
+    /// The cohort effects of the sexes' models, drawn per scenario.
+    pub fn cohorts(&self) -> &CohortBasis {
+        &self.cohorts
     }
 
     /// Lower Cholesky factor L of the innovation covariance, L Lᵀ = Σ̂.

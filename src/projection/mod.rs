@@ -2,8 +2,9 @@
 //!
 //! A scenario is a pure function of (seed, scenario number): the fitted models' stacked
 //! period indices are projected by one joint random walk with drift ([`joint`], estimated
-//! by [`random_walk`]), with optional parameter uncertainty ([`uncertainty`]), and mapped
-//! to rates by each model ([`scenarios`]). The [`engine`] runs scenarios in parallel and
+//! by [`random_walk`]), with optional parameter uncertainty ([`uncertainty`]), cohort
+//! models' younger cohorts drawn from their index's time series ([`cohort_paths`]), and
+//! mapped to rates by each model ([`scenarios`]). The [`engine`] runs scenarios in parallel and
 //! streams them to Parquet.
 //!
 //! Choices the files rely on:
@@ -15,6 +16,9 @@
 //!   at every age from the first fitted age to `max_age`. `m = −ln(1 − q)` is written for
 //!   log-rate models (null where q = 1) and left out for CBD, which models q itself.
 //! - `factors.parquet` holds the projected years only; the fitted history is in `fit.json`.
+//!   Cohort models add rows `factor = "gamma"` with `year` the birth year: the cohort
+//!   index of every cohort the scenario draws (born after the last estimated cohort, up
+//!   to the first fitted age in the last projected year).
 //! - `period.parquet` holds e°65 per scenario, sex and projected year, computed from that
 //!   year's rates under UDD; it is skipped when age 65 is not among the rates' ages.
 //! - A shard K/N is block K of N contiguous, nearly equal blocks of the scenario numbers
@@ -22,6 +26,7 @@
 //! - The bootstrap resamples D* ~ Poisson(E^c · m̂) with m̂ = −ln(1 − q̂) from the fitted
 //!   rates (the constant-force convention), for Lee–Carter and CBD alike.
 
+pub mod cohort_paths;
 pub mod cohort_series;
 pub mod engine;
 pub mod joint;
@@ -31,7 +36,8 @@ pub mod scenarios;
 pub mod streams;
 pub mod uncertainty;
 
-pub use cohort_series::CohortSeries;
+pub use cohort_paths::{CohortBasis, CohortDraw, CohortPath};
+pub use cohort_series::{CohortSeries, SeriesTerms};
 pub use engine::{OutputOptions, Shard, Written, write_projection};
 pub use joint::JointBasis;
 pub use random_walk::RandomWalk;

@@ -18,6 +18,7 @@ use crate::data::config::{ProjectionConfig, UncertaintyMethod};
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::models::FittedModel;
+use crate::projection::cohort_paths::{CohortDraw, CohortPath};
 use crate::projection::joint::JointBasis;
 use crate::projection::streams::{Purpose, stream};
 use crate::projection::uncertainty::{BootstrapSource, Uncertainty, bootstrap_basis, drawn_drift};
@@ -88,6 +89,7 @@ pub struct ScenarioPaths {
     dims: usize,
     factors: Vec<f64>,
     rates: Vec<f64>,
+    cohorts: Vec<Option<CohortPath>>,
 }
 
 impl ScenarioPaths {
@@ -149,6 +151,11 @@ impl ScenarioPaths {
     pub fn factors(&self, sex_index: usize, h: usize) -> &[f64] {
         let row = &self.factors[(h - 1) * self.dims..h * self.dims];
         &row[self.offsets[sex_index]..self.offsets[sex_index + 1]]
+    }
+
+    /// The drawn cohort index of the sex at `sex_index` (cohort models only).
+    pub fn cohort(&self, sex_index: usize) -> Option<&CohortPath> {
+        self.cohorts.get(sex_index)?.as_ref()
     }
 
     /// The whole stacked index vector in projected year number `h` (1-based).
@@ -247,6 +254,7 @@ impl Projector {
             dims: b.dims(),
             factors: vec![0.0; years.len() * b.dims()],
             rates: vec![0.0; n * years.len() * ages.len()],
+            cohorts: b.cohorts().paths(self.settings.horizon),
         }
     }
 
@@ -343,6 +351,17 @@ impl Projector {
                 out.factors[(h - 1) * dims..h * dims].copy_from_slice(k.as_slice());
             }
         }
+        // The cohort index comes from streams of its own, so period paths are unchanged.
+        let how = if central_path {
+            CohortDraw::Central
+        } else {
+            CohortDraw::Noise {
+                drift: s.uncertainty == Uncertainty::Drift,
+            }
+        };
+        basis
+            .cohorts()
+            .draw(s.seed, scenario, how, &mut out.cohorts)?;
         self.fill_rates(basis, out)
     }
 
@@ -353,9 +372,14 @@ impl Projector {
             let model = basis.model(i);
             let range = basis.range(i);
             let block = &mut out.rates[i * n_years * n_ages..(i + 1) * n_years * n_ages];
+            let cohort = out.cohorts[i].as_ref();
             for (h, row) in block.chunks_exact_mut(n_ages).enumerate() {
                 let k = &out.factors[h * dims + range.start..h * dims + range.end];
-                model.rates(k, row);
+                match cohort {
+                    // Age x in year T + h takes γ of the cohort born in T + h − x.
+                    Some(c) => model.cohort_rates(k, c.by_age(h + 1), row),
+                    None => model.rates(k, row),
+                }
                 if let Some(a) = row.iter().position(|q| !(*q > 0.0 && *q <= 1.0)) {
                     return Err(Error::Numerical(format!(
                         "scenario {}, sex {sex}, year {}, age {}: projected rate q = {} is not in (0, 1] \

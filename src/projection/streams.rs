@@ -22,6 +22,10 @@ pub enum Purpose {
     Deaths,
     /// One simulated year of population deaths for the one-year capital.
     Experience,
+    /// Innovations of the cohort index, one per drawn cohort and sex.
+    CohortInnovations,
+    /// The scenario's cohort-series terms under drift uncertainty.
+    CohortDrift,
 }
 
 impl Purpose {
@@ -33,6 +37,8 @@ impl Purpose {
             Purpose::Bootstrap => 0x626f_6f74,
             Purpose::Deaths => 0x6465_6174,
             Purpose::Experience => 0x6578_7065,
+            Purpose::CohortInnovations => 0x636f_686f,
+            Purpose::CohortDrift => 0x6364_7269,
         }
     }
 }

@@ -52,7 +52,8 @@ pub fn drawn_drift(basis: &JointBasis, seed: u64, scenario: u64) -> DVector<f64>
 }
 
 /// Expected deaths of the fitted model on the fitted grid: E^c · m with
-/// m = −ln(1 − q) (constant force within each cell, the project's convention).
+/// m = −ln(1 − q) (constant force within each cell, the project's convention). A cohort
+/// model's cell (x, t) takes the fitted γ_{t−x} of its own cohort.
 pub fn fitted_deaths(model: &dyn FittedModel, population: &Population) -> Result<DMatrix<f64>> {
     let ages = model.ages();
     let years = model.years();
@@ -60,9 +61,13 @@ pub fn fitted_deaths(model: &dyn FittedModel, population: &Population) -> Result
     let width = (model.max_age() - ages.first + 1) as usize;
     let mut q = vec![0.0; width];
     let mut expected = DMatrix::zeros(ages.len(), years.len());
+    let cohorts = model.cohort_effects();
     for (j, year) in years.iter().enumerate() {
         let k: Vec<f64> = model.factors().column(j).iter().copied().collect();
-        model.rates(&k, &mut q);
+        match &cohorts {
+            Some(c) => model.cohort_rates(&k, &c.by_age(year, ages.first), &mut q),
+            None => model.rates(&k, &mut q),
+        }
         for i in 0..ages.len() {
             let m = -(-q[i]).ln_1p();
             let d = population.exposure[(i, j)] * m;
