@@ -1,5 +1,6 @@
 //! Scenario generation streamed to Parquet, on invented CBD models for two sexes with
-//! rates at 66 ages (55 to 120) over an 80-year horizon.
+//! rates at 66 ages (55 to 120) over an 80-year horizon; generation alone also for an
+//! invented Lee–Carter-like pair and the same pair with a drawn cohort index.
 //!
 //! `cargo bench --bench projection` measures small runs with criterion. The full-size run
 //! (10,000 scenarios × 2 sexes × 66 ages × 80 years, `paths.parquet` written with zstd) is
@@ -17,8 +18,8 @@ mod projection_support;
 use std::time::Instant;
 
 use criterion::{Criterion, criterion_group};
-use projection_support::{AGES, cbd_pair};
-use tailspan::data::config::Compression;
+use projection_support::{AGES, cbd_pair, cohort_pair, log_rate_pair};
+use tailspan::data::config::{CohortSeriesKind, Compression};
 use tailspan::projection::engine::ROW_GROUP_ROWS;
 use tailspan::projection::{
     OutputOptions, Projector, Settings, Uncertainty, scenario_ids, write_projection,
@@ -60,6 +61,27 @@ fn small(c: &mut Criterion) {
     group.bench_function("cbd-200-no-paths", |b| {
         b.iter(|| run(200, dir.path(), false))
     });
+    // A cohort model beside the same period model without one: the cost of drawing γ.
+    for (name, fits) in [
+        ("lc", log_rate_pair(120)),
+        ("apc", cohort_pair(CohortSeriesKind::Arima110Drift)),
+    ] {
+        let settings = Settings {
+            seed: 20261202,
+            horizon: 80,
+            noise: true,
+            uncertainty: Uncertainty::Drift,
+        };
+        let p = Projector::new(fits, settings, None).expect("invented models project");
+        group.bench_function(format!("{name}-generate-only-200"), |b| {
+            let mut buf = p.buffer();
+            b.iter(|| {
+                for s in 1..=200 {
+                    p.generate(s, &mut buf).expect("scenario");
+                }
+            })
+        });
+    }
     group.bench_function("cbd-generate-only-200", |b| {
         let p = projector();
         let mut buf = p.buffer();

@@ -8,8 +8,10 @@ use nalgebra::DMatrix;
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
+use tailspan::data::config::CohortSeriesKind;
 use tailspan::data::{Population, Sex, Span};
-use tailspan::models::{FitDiagnostics, FittedModel, MortalityModel};
+use tailspan::models::{CohortEffects, FitDiagnostics, FittedModel, MortalityModel};
+use tailspan::projection::CohortSeries;
 
 pub fn diagnostics() -> FitDiagnostics {
     FitDiagnostics {
@@ -288,4 +290,141 @@ pub fn experience_of(model: &dyn FittedModel, sex: Sex, exposure: f64) -> Popula
         DMatrix::from_element(ages.len(), years.len(), exposure),
     )
     .unwrap()
+}
+
+/// log m(x, t) = a_x + k_t + γ_{t−x} at the fitted ages; above them log m rises by 0.1 a
+/// year of age from the top fitted age; q = 1 − exp(−m) and q = 1 at `max_age`.
+pub struct FakeCohort {
+    pub sex: Sex,
+    pub ages: Span,
+    pub years: Span,
+    pub max_age: i32,
+    pub ax: Vec<f64>,
+    pub kt: DMatrix<f64>,
+    pub effects: CohortEffects,
+    pub frozen: Vec<f64>,
+    pub diag: FitDiagnostics,
+}
+
+impl FittedModel for FakeCohort {
+    fn name(&self) -> &'static str {
+        "apc"
+    }
+    fn method(&self) -> &'static str {
+        "fixed"
+    }
+    fn sex(&self) -> Sex {
+        self.sex
+    }
+    fn ages(&self) -> Span {
+        self.ages
+    }
+    fn years(&self) -> Span {
+        self.years
+    }
+    fn factor_names(&self) -> &'static [&'static str] {
+        &["k"]
+    }
+    fn factors(&self) -> &DMatrix<f64> {
+        &self.kt
+    }
+    fn rates(&self, factors: &[f64], out: &mut [f64]) {
+        self.cohort_rates(factors, &self.frozen, out);
+    }
+    fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
+        let n = self.ages.len();
+        let top = self.ax[n - 1] + factors[0] + gamma_by_age[n - 1];
+        for (i, q) in out.iter_mut().enumerate() {
+            let log_m = if i < n {
+                self.ax[i] + factors[0] + gamma_by_age[i]
+            } else {
+                top + 0.1 * (i + 1 - n) as f64
+            };
+            *q = -(-log_m.exp()).exp_m1();
+        }
+        *out.last_mut().unwrap() = 1.0;
+    }
+    fn cohort_effects(&self) -> Option<CohortEffects> {
+        Some(self.effects.clone())
+    }
+    fn max_age(&self) -> i32 {
+        self.max_age
+    }
+    fn diagnostics(&self) -> &FitDiagnostics {
+        &self.diag
+    }
+    fn residuals(&self) -> DMatrix<f64> {
+        DMatrix::zeros(self.ages.len(), self.years.len())
+    }
+    fn parameters_json(&self) -> serde_json::Value {
+        serde_json::Value::Null
+    }
+}
+
+/// Cohorts on the 46 × 40 grid: 85, of which the two at each corner (fewer than three
+/// cells) are left out, as `min_cohort_cells = 3` would.
+pub const COHORTS: usize = 85;
+pub const LEFT_OUT: usize = 2;
+pub const ESTIMATED: usize = COHORTS - 2 * LEFT_OUT;
+
+/// Invented estimated cohort indices of two sexes, drawn from `kind` with correlated
+/// innovations.
+pub fn invented_gamma(kind: CohortSeriesKind) -> [Vec<f64>; 2] {
+    let mut rng = ChaCha8Rng::seed_from_u64(41);
+    let rho: f64 = 0.6;
+    let mut out = [vec![0.0, 0.004], vec![0.01, 0.012]];
+    for i in 2..ESTIMATED {
+        let z1: f64 = rng.sample(StandardNormal);
+        let z2: f64 = rng.sample(StandardNormal);
+        let shocks = [z1, rho * z1 + (1.0 - rho * rho).sqrt() * z2];
+        for (g, z) in out.iter_mut().zip(shocks) {
+            let next = match kind {
+                CohortSeriesKind::Arima110Drift => {
+                    g[i - 1] + (-0.002 + 0.5 * (g[i - 1] - g[i - 2])) + 0.01 * z
+                }
+                CohortSeriesKind::Ar1Trend => {
+                    0.01 - 0.0005 * (i + 1) as f64 + 0.7 * g[i - 1] + 0.015 * z
+                }
+            };
+            g.push(next);
+        }
+    }
+    out
+}
+
+/// A two-sex pair of cohort models sharing the period histories of `log_rate_pair`.
+pub fn cohort_pair(kind: CohortSeriesKind) -> Vec<(Sex, Box<dyn FittedModel>)> {
+    let [kf, km] = histories(11, YEARS.len(), &[5.0], &[-1.2], &[0.9], 0.8);
+    let n = AGES.len();
+    let [gf, gm] = invented_gamma(kind);
+    let make = |sex: Sex, k: DMatrix<f64>, gamma: Vec<f64>, shift: f64| -> Box<dyn FittedModel> {
+        let series = CohortSeries::fit(kind, &gamma).unwrap();
+        let mut values = vec![gamma[0]; LEFT_OUT];
+        values.extend_from_slice(&gamma);
+        values.extend(series.project(&[0.0; LEFT_OUT]));
+        let mut fitted = vec![false; COHORTS];
+        fitted[LEFT_OUT..LEFT_OUT + ESTIMATED].fill(true);
+        let effects = CohortEffects {
+            first_cohort: YEARS.first - AGES.last,
+            values,
+            fitted,
+            loading: vec![1.0; n],
+            series,
+        };
+        Box::new(FakeCohort {
+            sex,
+            ages: AGES,
+            years: YEARS,
+            max_age: 120,
+            ax: (0..n).map(|i| -5.0 + shift + 0.09 * i as f64).collect(),
+            kt: k / n as f64,
+            frozen: effects.by_age(YEARS.last, AGES.first),
+            effects,
+            diag: diagnostics(),
+        })
+    };
+    vec![
+        (Sex::F, make(Sex::F, kf, gf, -0.3)),
+        (Sex::M, make(Sex::M, km, gm, 0.0)),
+    ]
 }
