@@ -21,6 +21,7 @@
 //! Tolerances are four Monte Carlo standard errors: σ/√N for a mean, σ² √(2/(N − 1)) for a
 //! normal variance, (1 − ρ²)/√N for a correlation (Fisher's large-sample result).
 
+mod models_support;
 mod projection_support;
 
 use std::path::Path;
@@ -414,4 +415,28 @@ fn cohort_files_do_not_depend_on_threads_or_shards() {
         joined.extend(rows(&shards.join(format!("factors.part-{k}-of-3.parquet"))));
     }
     assert!(joined == factors, "shards differ from the single run");
+}
+
+#[test]
+fn bootstrap_expected_deaths_use_each_cells_own_cohort() {
+    // The fitted APC central rate of cell (x, t) is exp(a_x + k_t + γ_{t−x}); the bootstrap
+    // resamples deaths around E · m from that cell's own cohort, not the last fitted year's.
+    let population = models_support::load_population("cohort_experience.csv");
+    let fit = models_support::apc().fit_population(&population).unwrap();
+    let expected = tailspan::projection::uncertainty::fitted_deaths(&fit, &population).unwrap();
+    let mut frozen_differs = false;
+    for j in 0..population.years.len() {
+        for i in 0..population.ages.len() {
+            let want = population.exposure[(i, j)] * fit.central_rate(i, j);
+            let got = expected[(i, j)];
+            assert!(
+                (got - want).abs() <= 1e-9 * want,
+                "age row {i}, year column {j}: {got} vs {want}"
+            );
+            let last = population.years.len() - 1;
+            let c = fit.grid.cohort(i, j);
+            frozen_differs |= fit.cohorts.values[c] != fit.cohorts.values[fit.grid.cohort(i, last)];
+        }
+    }
+    assert!(frozen_differs);
 }
