@@ -7,6 +7,8 @@
 //! likelihood, γ_c is not estimated, and after the fit the young end is filled by the
 //! central projection of the cohort index's time series and the old end by holding the
 //! oldest estimated value (a time series has no backward projection worth the name).
+//! The projection draws the young end afresh in every scenario
+//! ([`crate::projection::cohort_paths`]); the central values filled here are scenario 0's.
 
 use crate::data::config::CohortSeriesKind;
 use crate::data::{Population, Span};
