@@ -3,7 +3,9 @@
 pub mod atomic;
 pub mod hash;
 pub mod parquet;
+pub mod provenance;
 pub mod report;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};
 pub use parquet::ParquetSink;
+pub use provenance::Provenance;
