@@ -369,4 +369,72 @@ mod tests {
             .sum();
         assert_eq!(rows, 9);
     }
+
+    #[test]
+    fn provenance_is_recorded_and_non_finite_values_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.parquet");
+        let schema = Arc::new(Schema::new(vec![
+            Field::new("scenario", DataType::UInt32, false),
+            Field::new("q", DataType::Float64, true),
+        ]));
+        let provenance = Provenance::new(11, 5, Vec::new());
+        let batch = |q: Vec<Option<f64>>| {
+            RecordBatch::try_new(
+                schema.clone(),
+                vec![
+                    Arc::new(UInt32Array::from_iter_values(3..3 + q.len() as u32)),
+                    Arc::new(Float64Array::from(q)),
+                ],
+            )
+            .unwrap()
+        };
+        for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let mut sink = ParquetSink::create(
+                &path,
+                schema.clone(),
+                Compression::Zstd,
+                "scenario; q",
+                &provenance,
+                8,
+            )
+            .unwrap();
+            let err = sink
+                .write(&batch(vec![Some(0.1), Some(bad)]))
+                .unwrap_err()
+                .to_string();
+            assert!(
+                err.contains("column `q`") && err.contains("scenario 4"),
+                "{err}"
+            );
+            drop(sink);
+            assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+        }
+        // A missing value is a null, which is written.
+        write_batch(
+            &path,
+            &batch(vec![Some(0.1), None]),
+            Compression::Zstd,
+            "scenario; q",
+            &provenance,
+        )
+        .unwrap();
+        let file = std::fs::File::open(&path).unwrap();
+        let builder = ParquetRecordBatchReaderBuilder::try_new(file).unwrap();
+        let kv = builder
+            .metadata()
+            .file_metadata()
+            .key_value_metadata()
+            .unwrap();
+        let value = |key: &str| {
+            kv.iter()
+                .find(|k| k.key == key)
+                .and_then(|k| k.value.clone())
+                .unwrap()
+        };
+        assert_eq!(value(crate::io::provenance::SEED_KEY), "11");
+        assert_eq!(value(crate::io::provenance::SCENARIOS_KEY), "5");
+        assert_eq!(value(crate::io::provenance::RUN_ID_KEY), provenance.run_id);
+        assert_eq!(value(VERSION_KEY), crate::VERSION);
+    }
 }
