@@ -79,12 +79,17 @@ fn refused(dir: &Path, command: &str, config: &Path, pieces: &[&str]) {
 fn a_fit_that_hits_its_iteration_cap_is_an_error_naming_the_keys() {
     let dir = tempfile::tempdir().unwrap();
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/demo/experience.csv");
-    for model in [
-        "kind = \"lee-carter\"\nfit = \"poisson\"\nmax_iterations = 1",
-        "kind = \"cbd\"\nmax_iterations = 1",
+    for (kind, commands) in [
+        ("lee-carter", &["fit", "project"][..]),
+        ("cbd", &["fit", "project"]),
+        ("apc", &["fit"]),
+        ("renshaw-haberman", &["fit"]),
+        ("m6", &["fit"]),
+        ("m7", &["fit"]),
     ] {
-        let cfg = write_config(dir.path(), &demo, model, 20);
-        for command in ["fit", "project"] {
+        let model = format!("kind = \"{kind}\"\nmax_iterations = 1");
+        let cfg = write_config(dir.path(), &demo, &model, 20);
+        for &command in commands {
             refused(
                 dir.path(),
                 command,

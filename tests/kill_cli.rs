@@ -204,17 +204,19 @@ fn kill_at(dir: &Path, moment: Moment) -> bool {
 
 #[test]
 fn killed_runs_leave_complete_files_and_a_rerun_restores_the_whole_set() {
+    // The uninterrupted run, and beside it (at the same time) a whole set from another
+    // run (another seed) in the folder the kills will use, so that a kill can leave files
+    // of two runs side by side.
     let reference_dir = tempfile::tempdir().unwrap();
     write_config(reference_dir.path(), 20_261_202);
-    run_to_end(reference_dir.path());
-    let reference = snapshot(&reference_dir.path().join("out"));
-    assert_eq!(reference.len(), 11, "{:?}", reference.keys());
-
-    // The folder starts with a whole set from another run (another seed), so that a kill
-    // can leave files of two runs side by side.
     let dir = tempfile::tempdir().unwrap();
     write_config(dir.path(), 99);
-    run_to_end(dir.path());
+    let mut both = [start(reference_dir.path()), start(dir.path())];
+    for child in &mut both {
+        assert!(child.wait().unwrap().success());
+    }
+    let reference = snapshot(&reference_dir.path().join("out"));
+    assert_eq!(reference.len(), 11, "{:?}", reference.keys());
     let out = dir.path().join("out");
     check_consistent(&out, "the older run");
     write_config(dir.path(), 20_261_202);
@@ -226,17 +228,16 @@ fn killed_runs_leave_complete_files_and_a_rerun_restores_the_whole_set() {
         Moment::Committed("book.parquet"),
         Moment::Committed("summary.json"),
         Moment::After(150),
-        Moment::After(600),
-        Moment::After(1200),
+        Moment::After(700),
     ];
     let (mut temporaries, mut killed) = (0, 0);
     for moment in moments {
         killed += usize::from(kill_at(dir.path(), moment));
         temporaries += check_consistent(&out, &format!("killed at {moment:?}"));
     }
-    // Most moments fall inside the run (the last ones may not on a fast machine).
+    // Most moments fall inside the run (a run that ends first is left to end).
     assert!(
-        killed >= 5,
+        killed >= 4,
         "only {killed} runs were killed before they ended"
     );
     // SIGKILL leaves the temporary being written; at least one kill caught one.

@@ -90,6 +90,32 @@ fn metadata_of_finite_file(path: &Path) -> BTreeMap<String, String> {
     kv
 }
 
+/// JSON keys whose value is null when the figure does not apply.
+const OPTIONAL: [&str; 4] = [
+    ".one_year",
+    ".term_years",
+    ".cohort_time_series",
+    ".idiosyncratic_sd",
+];
+
+/// The paths of every null in `value`.
+fn null_paths(value: &serde_json::Value, path: String, out: &mut Vec<String>) {
+    match value {
+        serde_json::Value::Null => out.push(path),
+        serde_json::Value::Array(items) => {
+            for (i, v) in items.iter().enumerate() {
+                null_paths(v, format!("{path}[{i}]"), out);
+            }
+        }
+        serde_json::Value::Object(map) => {
+            for (k, v) in map {
+                null_paths(v, format!("{path}.{k}"), out);
+            }
+        }
+        _ => {}
+    }
+}
+
 #[test]
 fn every_output_records_version_seed_scenarios_and_input_hashes() {
     let dir = tempfile::tempdir().unwrap();
@@ -163,6 +189,16 @@ fn every_output_records_version_seed_scenarios_and_input_hashes() {
         assert_eq!(run["scenarios"], 30, "{name}");
         assert_eq!(run["config_sha256"], expected[0].1.as_str(), "{name}");
         check_inputs(&run["inputs"], name);
+        // serde_json writes a NaN or an infinity as null: nulls may stand only where a
+        // figure is optional by design.
+        let mut nulls = Vec::new();
+        null_paths(&doc, String::new(), &mut nulls);
+        for path in nulls {
+            assert!(
+                OPTIONAL.iter().any(|o| path.ends_with(o)),
+                "{name}: null at {path}"
+            );
+        }
     }
 
     let report = std::fs::read_to_string(out.join("report.html")).unwrap();
