@@ -132,10 +132,11 @@ pub fn record_run_id(folder: &Path, name: &str) -> Result<Option<String>> {
         return Ok(Some(id.to_string()));
     }
     // The report names its run in a <meta> element near the top of its head.
-    let mut head = String::new();
+    let mut bytes = Vec::new();
     file.take(4096)
-        .read_to_string(&mut head)
+        .read_to_end(&mut bytes)
         .map_err(|e| Error::io(&path, e))?;
+    let head = String::from_utf8_lossy(&bytes);
     let marker = format!("<meta name=\"{REPORT_META_NAME}\" content=\"");
     let id = head
         .find(&marker)
@@ -222,7 +223,9 @@ mod tests {
         assert!(!dir.path().join("report.html").exists());
         // A record without a run id (or unreadable) is another run's.
         std::fs::write(dir.path().join("summary.json"), "{}").unwrap();
+        std::fs::write(dir.path().join("report.html"), [0xff, 0xfe, b'<']).unwrap();
         retire_stale_records(dir.path(), &own).unwrap();
         assert!(!dir.path().join("summary.json").exists());
+        assert!(!dir.path().join("report.html").exists());
     }
 }

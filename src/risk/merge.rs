@@ -168,12 +168,12 @@ impl Seen {
     }
 }
 
-/// The first 12 hexadecimal digits of a run id, enough to tell runs apart in a message.
-fn short(run_id: &str) -> &str {
+/// The first 12 characters of a run id, enough to tell runs apart in a message.
+fn short(run_id: &str) -> String {
     if run_id.is_empty() {
-        "none"
+        "none".to_string()
     } else {
-        &run_id[..run_id.len().min(12)]
+        run_id.chars().take(12).collect()
     }
 }
 
