@@ -3,10 +3,12 @@
 //! run, temporaries are hidden `.NAME.XXXXXX.partial` files, and a rerun cleans them up and
 //! gives exactly the bytes of an uninterrupted run.
 
+#![cfg(unix)]
+
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
 use std::process::{Child, Command, Stdio};
-use std::time::{Duration, Instant, SystemTime};
+use std::time::{Duration, Instant};
 
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
@@ -163,19 +165,21 @@ enum Moment {
     After(u64),
 }
 
-fn modified_since(path: &Path, since: SystemTime) -> bool {
-    std::fs::metadata(path)
-        .and_then(|m| m.modified())
-        .is_ok_and(|t| t >= since)
+/// The file's inode: a commit renames a new file over the old one, so the inode changes
+/// (the two exist at once, so the number cannot be reused), whatever the clock's grain.
+fn inode(path: &Path) -> Option<u64> {
+    use std::os::unix::fs::MetadataExt;
+    std::fs::metadata(path).ok().map(|m| m.ino())
 }
 
 /// Runs once and kills the process at `moment` (or lets it end if it finishes first);
 /// whether it was killed.
 fn kill_at(dir: &Path, moment: Moment) -> bool {
     let out = dir.join("out");
-    // A file committed from here on has a later modification time.
-    std::thread::sleep(Duration::from_millis(20));
-    let since = SystemTime::now();
+    let before = match moment {
+        Moment::Committed(name) => inode(&out.join(name)),
+        _ => None,
+    };
     let started = Instant::now();
     let mut child = start(dir);
     loop {
@@ -189,7 +193,7 @@ fn kill_at(dir: &Path, moment: Moment) -> bool {
                     name.starts_with('.') && name.ends_with(".partial")
                 })
             }),
-            Moment::Committed(name) => modified_since(&out.join(name), since),
+            Moment::Committed(name) => inode(&out.join(name)).is_some_and(|i| Some(i) != before),
             Moment::After(ms) => started.elapsed() >= Duration::from_millis(ms),
         };
         if now {
@@ -232,8 +236,11 @@ fn killed_runs_leave_complete_files_and_a_rerun_restores_the_whole_set() {
     ];
     let (mut temporaries, mut killed) = (0, 0);
     for moment in moments {
-        killed += usize::from(kill_at(dir.path(), moment));
-        temporaries += check_consistent(&out, &format!("killed at {moment:?}"));
+        let was_killed = kill_at(dir.path(), moment);
+        let left = check_consistent(&out, &format!("killed at {moment:?}"));
+        eprintln!("{moment:?}: killed {was_killed}, {left} temporaries left");
+        killed += usize::from(was_killed);
+        temporaries += left;
     }
     // Most moments fall inside the run (a run that ends first is left to end).
     assert!(
