@@ -64,6 +64,7 @@ pub fn fit_and_write(
         run: provenance,
         body: &document,
     };
+    crate::io::atomic::check_finite_json(&json_path, &recorded)?;
     let mut text = serde_json::to_string_pretty(&recorded)
         .map_err(|e| Error::io(&json_path, std::io::Error::other(e)))?;
     text.push('\n');

@@ -82,6 +82,17 @@ impl AtomicFile {
     }
 }
 
+/// Refuses a JSON document for `target` holding a NaN or an infinity, naming its key.
+pub fn check_finite_json<T: serde::Serialize + ?Sized>(target: &Path, value: &T) -> Result<()> {
+    match crate::io::finite::first_non_finite(value) {
+        None => Ok(()),
+        Some(at) => Err(Error::Numerical(format!(
+            "{}: {at}; NaN and infinities are never written (JSON would show them as null)",
+            target.display()
+        ))),
+    }
+}
+
 /// Suffix of every temporary output file.
 pub const TEMP_SUFFIX: &str = ".partial";
 
@@ -137,8 +148,10 @@ pub fn write_bytes(target: impl AsRef<Path>, bytes: &[u8]) -> Result<()> {
 }
 
 /// Writes `value` as pretty JSON to `target` atomically.
+/// A document with a NaN or an infinity anywhere is refused (JSON would show it as null).
 pub fn write_json<T: serde::Serialize>(target: impl AsRef<Path>, value: &T) -> Result<()> {
     let target = target.as_ref();
+    check_finite_json(target, value)?;
     let mut text = serde_json::to_string_pretty(value).map_err(|e| Error::Io {
         path: target.to_path_buf(),
         source: std::io::Error::other(e),

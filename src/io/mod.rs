@@ -1,6 +1,7 @@
 //! Output: atomic writers for JSON, CSV and Parquet, the report and its charts.
 
 pub mod atomic;
+pub mod finite;
 pub mod hash;
 pub mod parquet;
 pub mod provenance;
