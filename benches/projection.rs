@@ -43,6 +43,7 @@ fn run(scenarios: usize, folder: &std::path::Path, paths: bool) -> u64 {
         compression: Compression::Zstd,
         shard: None,
         row_group_rows: ROW_GROUP_ROWS,
+        provenance: tailspan::io::Provenance::new(20_261_202, scenarios, Vec::new()),
     };
     write_projection(&mut p, scenario_ids(scenarios, true), &options, &|_| {})
         .expect("projection writes")

@@ -10,6 +10,7 @@ use models_support::*;
 use tailspan::cli::fit::fit_and_write;
 use tailspan::data::config::CohortLoading;
 use tailspan::data::{Config, Experience};
+use tailspan::io::Provenance;
 use tailspan::models::{CbdCohortVariant, FittedModel};
 
 fn config(folder: &Path, model: &str, years: [i32; 2]) -> Config {
@@ -39,7 +40,7 @@ fn every_kind_is_written_and_ranked_by_bic() {
          cohort_loading = \"unit\"\ncohort_series = \"ar1-trend\"",
         [2000, 2014],
     );
-    fit_and_write(&config, &experience()).unwrap();
+    fit_and_write(&config, &Provenance::new(0, 0, Vec::new()), &experience()).unwrap();
     let doc: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("fit.json")).unwrap())
             .unwrap();
@@ -165,7 +166,8 @@ fn cohorts_the_years_cannot_identify_are_a_model_error() {
         "kind = \"apc\"\nmin_cohort_cells = 4",
         [2000, 2002],
     );
-    let err = fit_and_write(&config, &experience()).unwrap_err();
+    let err =
+        fit_and_write(&config, &Provenance::new(0, 0, Vec::new()), &experience()).unwrap_err();
     assert!(matches!(err, tailspan::Error::Model { .. }), "{err}");
     let text = err.to_string();
     assert!(text.contains("not identified"), "{text}");

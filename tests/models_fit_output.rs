@@ -9,6 +9,7 @@ use models_support::*;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use tailspan::cli::fit::fit_and_write;
 use tailspan::data::{Config, Experience};
+use tailspan::io::Provenance;
 
 fn config(folder: &Path, model: &str, ages: [i32; 2]) -> Config {
     let text = format!(
@@ -32,6 +33,11 @@ folder = "{}"
     Config::parse(&text, Path::new("test.toml")).unwrap()
 }
 
+/// A provenance without input files: the config here is built in memory.
+fn unrecorded() -> Provenance {
+    Provenance::new(0, 0, Vec::new())
+}
+
 fn experience(file: &str) -> Experience {
     Experience {
         source: fixture(file),
@@ -43,7 +49,7 @@ fn experience(file: &str) -> Experience {
 fn both_kinds_are_written_and_ranked() {
     let dir = tempfile::tempdir().unwrap();
     let config = config(dir.path(), r#"kind = ["lee-carter", "cbd"]"#, [60, 79]);
-    let fits = fit_and_write(&config, &experience("small_experience.csv")).unwrap();
+    let fits = fit_and_write(&config, &unrecorded(), &experience("small_experience.csv")).unwrap();
     assert_eq!(fits.fits.len(), 2);
 
     let doc: serde_json::Value =
@@ -110,7 +116,7 @@ fn both_kinds_are_written_and_ranked() {
 fn ages_outside_the_experience_name_the_key_and_write_nothing() {
     let dir = tempfile::tempdir().unwrap();
     let config = config(dir.path(), r#"kind = "cbd""#, [60, 85]);
-    let err = fit_and_write(&config, &experience("small_experience.csv"))
+    let err = fit_and_write(&config, &unrecorded(), &experience("small_experience.csv"))
         .unwrap_err()
         .to_string();
     assert!(err.contains("data.ages"), "{err}");
@@ -122,7 +128,7 @@ fn ages_outside_the_experience_name_the_key_and_write_nothing() {
 fn svd_on_zero_cells_fails_cleanly() {
     let dir = tempfile::tempdir().unwrap();
     let config = config(dir.path(), r#"fit = "svd""#, [60, 79]);
-    let err = fit_and_write(&config, &experience("sparse_experience.csv"))
+    let err = fit_and_write(&config, &unrecorded(), &experience("sparse_experience.csv"))
         .unwrap_err()
         .to_string();
     assert!(err.contains("poisson"), "{err}");
@@ -133,7 +139,7 @@ fn svd_on_zero_cells_fails_cleanly() {
 fn one_kind_has_no_model_column_or_ranking() {
     let dir = tempfile::tempdir().unwrap();
     let config = config(dir.path(), r#"fit = "svd""#, [60, 79]);
-    fit_and_write(&config, &experience("small_experience.csv")).unwrap();
+    fit_and_write(&config, &unrecorded(), &experience("small_experience.csv")).unwrap();
     let doc: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.path().join("fit.json")).unwrap())
             .unwrap();

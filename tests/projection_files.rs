@@ -35,6 +35,7 @@ fn options(folder: &Path, shard: Option<Shard>, row_group_rows: usize) -> Output
         compression: Compression::Zstd,
         shard,
         row_group_rows,
+        provenance: tailspan::io::Provenance::new(7, 0, Vec::new()),
     }
 }
 
@@ -337,7 +338,7 @@ fn rates_leaving_the_unit_interval_stop_the_run_and_leave_no_files() {
     )
     .unwrap_err()
     .to_string();
-    for part in ["scenario 0", "sex F", "year", "age", "not in (0, 1]"] {
+    for part in ["scenario 0", "sex F", "year", "age", "not in (0, 1)"] {
         assert!(err.contains(part), "{err}");
     }
     assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0, "{err}");

@@ -2,7 +2,8 @@
 //! `residuals.parquet`.
 //!
 //! Both files are completed under temporary names and only then renamed, so a failed fit
-//! leaves the output folder as it was.
+//! leaves the output folder as it was; `fit.json` is renamed last, after the residuals it
+//! describes. Both record the run's provenance.
 
 use std::io::Write;
 use std::path::PathBuf;
@@ -13,8 +14,9 @@ use arrow_schema::{DataType, Field, Schema};
 
 use crate::data::{Config, Experience, Population};
 use crate::error::{Error, Result};
-use crate::io::AtomicFile;
 use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink};
+use crate::io::provenance::{Recorded, retire_stale_records};
+use crate::io::{AtomicFile, Provenance};
 use crate::models::FitSet;
 
 /// Arguments of `tailspan fit`.
@@ -27,8 +29,9 @@ pub struct FitArgs {
 /// Runs `tailspan fit`: loads the config and the experience, fits, writes, prints a table.
 pub fn run(args: &FitArgs, _quiet: bool) -> Result<()> {
     let config = Config::load(&args.config)?;
+    let provenance = crate::pipeline::provenance(&config)?;
     let experience = load_experience(&config)?;
-    let fits = fit_and_write(&config, &experience)?;
+    let fits = fit_and_write(&config, &provenance, &experience)?;
     print_table(&fits)
 }
 
@@ -44,22 +47,34 @@ fn load_experience(config: &Config) -> Result<Experience> {
 
 /// Fits every configured kind to every configured sex of `experience` and writes
 /// `fit.json` and `residuals.parquet` into the config's output folder.
-pub fn fit_and_write(config: &Config, experience: &Experience) -> Result<FitSet> {
+/// Both files record `provenance`.
+pub fn fit_and_write(
+    config: &Config,
+    provenance: &Provenance,
+    experience: &Experience,
+) -> Result<FitSet> {
     let window = select_window(config, experience)?;
     let fits = FitSet::fit(&config.model, &window)?;
     let folder = config.output_folder();
 
     let json_path = folder.join("fit.json");
     let mut json = AtomicFile::create(&json_path)?;
-    let mut text = serde_json::to_string_pretty(&fits.document())
+    let document = fits.document();
+    let recorded = Recorded {
+        run: provenance,
+        body: &document,
+    };
+    crate::io::atomic::check_finite_json(&json_path, &recorded)?;
+    let mut text = serde_json::to_string_pretty(&recorded)
         .map_err(|e| Error::io(&json_path, std::io::Error::other(e)))?;
     text.push('\n');
     json.write_all(text.as_bytes())
         .map_err(|e| Error::io(&json_path, e))?;
 
-    let residuals = write_residuals(&fits, config, folder.join("residuals.parquet"))?;
-    json.commit()?;
+    let residuals = write_residuals(&fits, config, provenance, folder.join("residuals.parquet"))?;
+    retire_stale_records(&folder, provenance)?;
     residuals.commit()?;
+    json.commit()?;
     Ok(fits)
 }
 
@@ -113,7 +128,12 @@ const RESIDUALS_SCHEMA: &str = "model: model name (only when several kinds are f
     models, belongs to a cohort left out of the fit (model.min_cohort_cells)";
 
 /// Writes the deviance residuals, one row per fitted cell, and returns the uncommitted file.
-fn write_residuals(fits: &FitSet, config: &Config, path: PathBuf) -> Result<AtomicFile> {
+fn write_residuals(
+    fits: &FitSet,
+    config: &Config,
+    provenance: &Provenance,
+    path: PathBuf,
+) -> Result<AtomicFile> {
     let with_model = fits.several_kinds();
     let mut fields = Vec::new();
     if with_model {
@@ -131,6 +151,7 @@ fn write_residuals(fits: &FitSet, config: &Config, path: PathBuf) -> Result<Atom
         schema.clone(),
         config.output.compression,
         RESIDUALS_SCHEMA,
+        provenance,
         DEFAULT_ROWS_PER_GROUP,
     )?;
     for fit in &fits.fits {

@@ -7,6 +7,7 @@ use crate::cli::progress::Progress;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
+use crate::io::provenance::{Recorded, retire_stale_records};
 use crate::io::write_json;
 use crate::pipeline::{
     ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, value_book, write_hedge_table,
@@ -33,6 +34,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
             "no `[hedge]` section: nothing to price",
         )
     })?;
+    let provenance = crate::pipeline::provenance(&config)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?.ok_or_else(|| {
         Error::config(
@@ -55,6 +57,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
         compression: config.output.compression,
         shard: None,
         row_group_rows: ROW_GROUP_ROWS,
+        provenance: provenance.clone(),
     };
     let extracts = Extracts {
         probes: ReferenceCells::of(&hedges).cells,
@@ -71,9 +74,14 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
         value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;
     bar.finish();
     let results = hedge_stage(&config, &hedges, &setup, &outcome)?;
-    let table = write_hedge_table(&config, &results, &outcome)?;
+    let table = write_hedge_table(&config, &provenance, &results, &outcome)?;
+    retire_stale_records(&config.output_folder(), &provenance)?;
     table.commit()?;
-    write_json(config.output_folder().join("hedge.json"), &results.summary)?;
+    let record = Recorded {
+        run: &provenance,
+        body: &results.summary,
+    };
+    write_json(config.output_folder().join("hedge.json"), &record)?;
     print_hedges(&results)
 }
 

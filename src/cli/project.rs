@@ -28,6 +28,7 @@ pub struct ProjectArgs {
 pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     let config = Config::load(&args.config)?;
+    let provenance = crate::pipeline::provenance(&config)?;
     // The shard is checked against the run's scenarios before the (slower) fit.
     let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
     let total = match shard {
@@ -43,6 +44,7 @@ pub fn run(args: &ProjectArgs, quiet: bool) -> Result<()> {
         compression: config.output.compression,
         shard,
         row_group_rows: ROW_GROUP_ROWS,
+        provenance,
     };
     let bar = Progress::new("projecting", total.end - total.start, quiet);
     let written = write_projection(&mut projector, ids, &options, &|n| bar.advance(n))?;

@@ -11,6 +11,7 @@ use crate::cli::value::print_summary;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
+use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
 use crate::pipeline::report::{ReportInputs, fan_probes, report_data};
 use crate::pipeline::{
@@ -66,6 +67,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let run_at = now_utc();
     let mut stages = Stages::new(verbose);
     let config = Config::load(&args.config)?;
+    let provenance = crate::pipeline::provenance(&config)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?;
     if book.is_some() {
@@ -73,7 +75,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     }
     stages.done("check");
 
-    let fit_set = fit_and_write(&config, &experience)?;
+    let fit_set = fit_and_write(&config, &provenance, &experience)?;
     let fits = ProjectedFits::fit(&config, &experience)?;
     stages.done("fit");
 
@@ -85,6 +87,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         compression: config.output.compression,
         shard: None,
         row_group_rows: ROW_GROUP_ROWS,
+        provenance: provenance.clone(),
     };
     let bar = Progress::new("projecting", ids.end - ids.start, quiet);
     write_projection(&mut projector, ids.clone(), &options, &|n| bar.advance(n))?;
@@ -118,18 +121,27 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;
         bar.finish();
         stages.done("value");
-        let mut figures = summarize(&config, &fits, &experience, &setup, &projector, &valued)?;
+        let mut figures = summarize(
+            &config,
+            &provenance,
+            &fits,
+            &experience,
+            &setup,
+            &projector,
+            &valued,
+        )?;
         stages.done("capital");
         let mut hedge_file = None;
         if let Some(h) = &config.hedge {
             let results = hedge_stage(&config, h, &setup, &valued)?;
-            hedge_file = Some(write_hedge_table(&config, &results, &valued)?);
+            hedge_file = Some(write_hedge_table(&config, &provenance, &results, &valued)?);
             figures.hedges = Some(serde_json::to_value(&results.summary).map_err(|e| {
                 Error::Numerical(format!("hedge summary could not be written: {e}"))
             })?);
             hedges = Some(results);
             stages.done("hedge");
         }
+        retire_stale_records(&config.output_folder(), &provenance)?;
         for file in files.into_iter().chain(hedge_file) {
             file.commit()?;
         }
@@ -147,6 +159,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         probe_offset,
         summary: summary.as_ref(),
         hedges: hedges.as_ref(),
+        provenance: &provenance,
         run_at,
     });
     let report = config.output_folder().join("report.html");
@@ -164,12 +177,19 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         .map_err(|e| Error::io("standard output", e))
 }
 
-/// The current time in UTC as ISO 8601, from the system clock.
+/// The current time in UTC as ISO 8601, from the system clock, or the time that
+/// `SOURCE_DATE_EPOCH` gives in seconds (the reproducible-builds.org convention), so that a
+/// rerun can reproduce the report byte for byte.
 fn now_utc() -> String {
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map(|d| d.as_secs())
-        .unwrap_or(0);
+    let fixed = std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|s| s.trim().parse::<u64>().ok());
+    let secs = fixed.unwrap_or_else(|| {
+        std::time::SystemTime::now()
+            .duration_since(std::time::UNIX_EPOCH)
+            .map(|d| d.as_secs())
+            .unwrap_or(0)
+    });
     let (days, rem) = (secs / 86_400, secs % 86_400);
     let (y, m, d) = civil_from_days(days as i64);
     format!(

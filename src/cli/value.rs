@@ -6,6 +6,7 @@ use std::path::PathBuf;
 use crate::cli::progress::Progress;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
+use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
 use crate::pipeline::{ProjectedFits, ValuationSetup, ValueRequest, summarize, value_book};
 use crate::projection::engine::ROW_GROUP_ROWS;
@@ -29,6 +30,7 @@ pub struct ValueArgs {
 pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     let config = Config::load(&args.config)?;
+    let provenance = crate::pipeline::provenance(&config)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?.ok_or_else(|| {
         Error::config(
@@ -46,6 +48,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
         compression: config.output.compression,
         shard,
         row_group_rows: ROW_GROUP_ROWS,
+        provenance: provenance.clone(),
     };
     let all = scenario_ids(config.projection.scenarios, config.projection.noise);
     let ids = match shard {
@@ -66,6 +69,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
         Some(_) => None,
         None => Some(summarize(
             &config,
+            &provenance,
             &fits,
             &experience,
             &setup,
@@ -73,6 +77,9 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
             &outcome,
         )?),
     };
+    if shard.is_none() {
+        retire_stale_records(&config.output_folder(), &provenance)?;
+    }
     for file in files {
         file.commit()?;
     }

@@ -5,8 +5,11 @@
 //! whenever `rows_per_group` rows have gathered. The file is written under a temporary name
 //! and renamed only by [`ParquetSink::finish`]; a run that fails part way leaves nothing.
 //! Each file carries a plain-text description of its columns in the key-value metadata
-//! (key `tailspan.schema`) and the crate version (key `tailspan.version`), so a reader
-//! downstream can tell what it holds without this code.
+//! (key `tailspan.schema`), the crate version (key `tailspan.version`) and the run's
+//! provenance (run id, seed, scenarios, the SHA-256 of the config and of every input; see
+//! `io::provenance`), so a reader downstream can tell what it holds and where it came from
+//! without this code. A floating-point value that is NaN or infinite is refused before it
+//! is written: a missing value is a null, never a NaN.
 
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -20,12 +23,13 @@ use ::parquet::file::metadata::KeyValue;
 use ::parquet::file::properties::{EnabledStatistics, WriterProperties, WriterPropertiesBuilder};
 use ::parquet::file::writer::SerializedFileWriter;
 use ::parquet::schema::types::ColumnPath;
-use arrow_array::{ArrayRef, RecordBatch};
+use arrow_array::{Array, ArrayRef, Float64Array, RecordBatch, UInt32Array};
 use arrow_schema::SchemaRef;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::atomic::AtomicFile;
+use crate::io::provenance::Provenance;
 
 /// Key of the column description in the file's key-value metadata.
 pub const SCHEMA_KEY: &str = "tailspan.schema";
@@ -50,10 +54,11 @@ impl ParquetSink {
         schema: SchemaRef,
         compression: Compression,
         description: &str,
+        provenance: &Provenance,
         rows_per_group: usize,
     ) -> Result<Self> {
         let path = path.as_ref().to_path_buf();
-        let props = base_properties(compression, description)
+        let props = base_properties(compression, description, provenance)
             .set_max_row_group_row_count(Some(rows_per_group.max(1)))
             .build();
         let file = AtomicFile::create(&path)?;
@@ -68,6 +73,7 @@ impl ParquetSink {
 
     /// Appends one batch; its schema must be the file's.
     pub fn write(&mut self, batch: &RecordBatch) -> Result<()> {
+        check_finite(&self.path, batch.schema().fields(), batch.columns())?;
         self.writer
             .write(batch)
             .map_err(|e| parquet_error(&self.path, e))?;
@@ -100,12 +106,14 @@ pub fn write_batch(
     batch: &RecordBatch,
     compression: Compression,
     description: &str,
+    provenance: &Provenance,
 ) -> Result<()> {
     let mut sink = ParquetSink::create(
         path,
         Arc::clone(&batch.schema()),
         compression,
         description,
+        provenance,
         DEFAULT_ROWS_PER_GROUP,
     )?;
     sink.write(batch)?;
@@ -113,18 +121,56 @@ pub fn write_batch(
 }
 
 /// The codec and the metadata every tailspan Parquet file carries.
-fn base_properties(compression: Compression, description: &str) -> WriterPropertiesBuilder {
+fn base_properties(
+    compression: Compression,
+    description: &str,
+    provenance: &Provenance,
+) -> WriterPropertiesBuilder {
     let codec = match compression {
         Compression::Zstd => Codec::ZSTD(ZstdLevel::default()),
         Compression::Snappy => Codec::SNAPPY,
         Compression::None => Codec::UNCOMPRESSED,
     };
+    let mut metadata = vec![
+        KeyValue::new(SCHEMA_KEY.to_string(), description.to_string()),
+        KeyValue::new(VERSION_KEY.to_string(), crate::VERSION.to_string()),
+    ];
+    metadata.extend(provenance.key_values());
     WriterProperties::builder()
         .set_compression(codec)
-        .set_key_value_metadata(Some(vec![
-            KeyValue::new(SCHEMA_KEY.to_string(), description.to_string()),
-            KeyValue::new(VERSION_KEY.to_string(), crate::VERSION.to_string()),
-        ]))
+        .set_key_value_metadata(Some(metadata))
+}
+
+/// Refuses a batch with a NaN or an infinity in a floating-point column, naming the file,
+/// the column and (where the batch has one) the scenario.
+fn check_finite(path: &Path, fields: &arrow_schema::Fields, columns: &[ArrayRef]) -> Result<()> {
+    let scenarios = fields
+        .iter()
+        .position(|f| f.name() == "scenario")
+        .and_then(|i| columns.get(i))
+        .and_then(|c| c.as_any().downcast_ref::<UInt32Array>());
+    for (field, column) in fields.iter().zip(columns) {
+        let Some(values) = column.as_any().downcast_ref::<Float64Array>() else {
+            continue;
+        };
+        let bad = values
+            .iter()
+            .enumerate()
+            .find(|(_, v)| v.is_some_and(|v| !v.is_finite()));
+        if let Some((row, Some(value))) = bad {
+            let at = match scenarios {
+                Some(s) if row < s.len() => format!("scenario {}", s.value(row)),
+                _ => format!("row {row} of a batch"),
+            };
+            return Err(Error::Numerical(format!(
+                "{}: column `{}` would hold {value} at {at}; non-finite values are never \
+                 written (nothing was committed)",
+                path.display(),
+                field.name()
+            )));
+        }
+    }
+    Ok(())
 }
 
 /// A Parquet file whose row groups are encoded and compressed elsewhere (on worker
@@ -171,10 +217,11 @@ impl RowGroupSink {
         schema: SchemaRef,
         compression: Compression,
         description: &str,
+        provenance: &Provenance,
         columns: &[ColumnLayout],
     ) -> Result<(RowGroupSink, Arc<RowGroupEncoder>)> {
         let path = path.as_ref().to_path_buf();
-        let mut props = base_properties(compression, description)
+        let mut props = base_properties(compression, description, provenance)
             .set_dictionary_enabled(false)
             .set_statistics_enabled(EnabledStatistics::Chunk);
         for c in columns {
@@ -236,6 +283,7 @@ impl RowGroupEncoder {
                 ),
             ));
         }
+        check_finite(path, self.schema.fields(), columns)?;
         let mut writers = self
             .factory
             .create_column_writers(0)
@@ -280,8 +328,16 @@ mod tests {
             Field::new("year", DataType::Int32, false),
             Field::new("q", DataType::Float64, true),
         ]));
-        let mut sink =
-            ParquetSink::create(&path, schema.clone(), Compression::Snappy, "year; q", 4).unwrap();
+        let provenance = Provenance::new(7, 3, Vec::new());
+        let mut sink = ParquetSink::create(
+            &path,
+            schema.clone(),
+            Compression::Snappy,
+            "year; q",
+            &provenance,
+            4,
+        )
+        .unwrap();
         for start in [0, 3, 6] {
             let batch = RecordBatch::try_new(
                 schema.clone(),
@@ -312,5 +368,73 @@ mod tests {
             .map(|b| b.unwrap().num_rows())
             .sum();
         assert_eq!(rows, 9);
+    }
+
+    #[test]
+    fn provenance_is_recorded_and_non_finite_values_are_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("t.parquet");
+        let schema = Arc::new(Schema::new(vec![
+            Field::new("scenario", DataType::UInt32, false),
+            Field::new("q", DataType::Float64, true),
+        ]));
+        let provenance = Provenance::new(11, 5, Vec::new());
+        let batch = |q: Vec<Option<f64>>| {
+            RecordBatch::try_new(
+                schema.clone(),
+                vec![
+                    Arc::new(UInt32Array::from_iter_values(3..3 + q.len() as u32)),
+                    Arc::new(Float64Array::from(q)),
+                ],
+            )
+            .unwrap()
+        };
+        for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let mut sink = ParquetSink::create(
+                &path,
+                schema.clone(),
+                Compression::Zstd,
+                "scenario; q",
+                &provenance,
+                8,
+            )
+            .unwrap();
+            let err = sink
+                .write(&batch(vec![Some(0.1), Some(bad)]))
+                .unwrap_err()
+                .to_string();
+            assert!(
+                err.contains("column `q`") && err.contains("scenario 4"),
+                "{err}"
+            );
+            drop(sink);
+            assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0);
+        }
+        // A missing value is a null, which is written.
+        write_batch(
+            &path,
+            &batch(vec![Some(0.1), None]),
+            Compression::Zstd,
+            "scenario; q",
+            &provenance,
+        )
+        .unwrap();
+        let file = std::fs::File::open(&path).unwrap();
+        let builder = ParquetRecordBatchReaderBuilder::try_new(file).unwrap();
+        let kv = builder
+            .metadata()
+            .file_metadata()
+            .key_value_metadata()
+            .unwrap();
+        let value = |key: &str| {
+            kv.iter()
+                .find(|k| k.key == key)
+                .and_then(|k| k.value.clone())
+                .unwrap()
+        };
+        assert_eq!(value(crate::io::provenance::SEED_KEY), "11");
+        assert_eq!(value(crate::io::provenance::SCENARIOS_KEY), "5");
+        assert_eq!(value(crate::io::provenance::RUN_ID_KEY), provenance.run_id);
+        assert_eq!(value(VERSION_KEY), crate::VERSION);
     }
 }

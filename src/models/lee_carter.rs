@@ -377,8 +377,9 @@ fn refit_period_index(
             return Err(Error::model(
                 NAME,
                 format!(
-                    "sex {}, year {year}: re-estimating k_t to match observed deaths did not \
-                     converge in {max_iterations} iterations (model.refit_kt)",
+                    "sex {}, year {year}: re-estimating k_t to match observed deaths \
+                     (model.refit_kt) did not converge in {max_iterations} iterations; raise \
+                     model.max_iterations or set model.refit_kt = false",
                     population.sex
                 ),
             ));

@@ -19,11 +19,14 @@ use crate::hedge::qforward::ReferenceCells;
 use crate::hedge::spec::HedgeConfig;
 use crate::hedge::{HedgeInputs, HedgeResults, evaluate};
 use crate::io::AtomicFile;
+use crate::io::Provenance;
 use crate::io::hash::{InputHash, hash_file};
 use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, ParquetSink};
 use crate::life::Fractional;
 use crate::models::{FittedModel, MortalityModel, build_model};
-use crate::projection::{BootstrapSource, OutputOptions, Projector, Settings, Uncertainty};
+use crate::projection::{
+    BootstrapSource, OutputOptions, Projector, Settings, Uncertainty, scenario_ids,
+};
 use crate::risk::one_year::{Recalibration, one_year_values};
 use crate::risk::summary::{OneYearFigures, RunInfo, RunSummary};
 use crate::risk::{CapitalSummary, StressFigures};
@@ -278,20 +281,35 @@ fn whole_future_horizon(row: &crate::valuation::LifetimeRow, setup: &ValuationSe
 
 /// The config and every input it names, hashed for the record.
 pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
-    let mut paths = vec![config.file.clone(), config.resolve(&config.data.experience)];
+    let mut paths = vec![
+        ("config", config.file.clone()),
+        ("experience", config.resolve(&config.data.experience)),
+    ];
     if let Some(book) = &config.data.book {
-        paths.push(config.resolve(book));
+        paths.push(("book", config.resolve(book)));
     }
     if let Some(curve) = &config.valuation.curve {
-        paths.push(config.resolve(curve));
+        paths.push(("curve", config.resolve(curve)));
     }
-    paths.iter().map(|p| hash_file(p)).collect()
+    paths.iter().map(|(role, p)| hash_file(role, p)).collect()
+}
+
+/// The provenance every output of the run `config` describes records: hashed once, at the
+/// start, so that every file of the run names the same inputs.
+pub fn provenance(config: &Config) -> Result<Provenance> {
+    let scenarios = scenario_ids(config.projection.scenarios, config.projection.noise).end - 1;
+    Ok(Provenance::new(
+        config.projection.seed,
+        scenarios as usize,
+        input_hashes(config)?,
+    ))
 }
 
 /// The figures of `summary.json` from a whole run's valuation: capital, the
 /// standard-formula stress, and (when configured) one-year capital by re-calibration.
 pub fn summarize(
     config: &Config,
+    provenance: &Provenance,
     fits: &ProjectedFits,
     experience: &Experience,
     setup: &ValuationSetup,
@@ -341,11 +359,13 @@ pub fn summarize(
         run: RunInfo {
             tool: "tailspan",
             version: crate::VERSION,
+            run_id: provenance.run_id.clone(),
             seed: config.projection.seed,
             scenarios: outcome.pv_expected.len(),
             model: fits.kind.to_string(),
             valuation_year: setup.year,
-            inputs: input_hashes(config)?,
+            config_sha256: provenance.config_sha256.clone(),
+            inputs: provenance.inputs.clone(),
         },
         best_estimate,
         trend,
@@ -396,6 +416,7 @@ pub fn hedge_stage(
 /// Writes `hedge.parquet` (`scenario, contract, fixed_leg, floating_leg, net`).
 pub fn write_hedge_table(
     config: &Config,
+    provenance: &Provenance,
     results: &HedgeResults,
     outcome: &ValuationOutcome,
 ) -> Result<AtomicFile> {
@@ -426,6 +447,7 @@ pub fn write_hedge_table(
         schema,
         config.output.compression,
         HEDGE_DESCRIPTION,
+        provenance,
         DEFAULT_ROWS_PER_GROUP,
     )?;
     sink.write(&batch)?;

@@ -56,6 +56,8 @@ pub struct ReportInputs<'a> {
     pub summary: Option<&'a RunSummary>,
     /// The hedges, when configured.
     pub hedges: Option<&'a HedgeResults>,
+    /// The run's provenance, shown in the run section.
+    pub provenance: &'a crate::io::Provenance,
     /// When the run started (ISO 8601, UTC).
     pub run_at: String,
 }
@@ -216,15 +218,12 @@ fn run_info(inputs: &ReportInputs<'_>) -> RunInfo {
                 .join("; "),
         });
     }
-    let hashes = inputs
-        .summary
-        .map(|s| s.run.inputs.clone())
-        .unwrap_or_default();
-    let roles = ["config", "experience", "book", "curve"];
+    let hashes = inputs.provenance.inputs.clone();
     RunInfo {
         tool_version: crate::VERSION.to_string(),
         run_at: inputs.run_at.clone(),
         config_path: Some(config.file.display().to_string()),
+        run_id: Some(inputs.provenance.run_id.clone()),
         seed: Some(config.projection.seed),
         scenarios: Some(config.projection.scenarios as u64),
         models: config
@@ -239,9 +238,8 @@ fn run_info(inputs: &ReportInputs<'_>) -> RunInfo {
         basis,
         inputs: hashes
             .into_iter()
-            .enumerate()
-            .map(|(i, h)| InputFile {
-                role: roles.get(i).copied().unwrap_or("input").to_string(),
+            .map(|h| InputFile {
+                role: h.role.to_string(),
                 path: h.path,
                 sha256: h.sha256,
             })

@@ -19,6 +19,7 @@ use parquet::basic::Encoding;
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::parquet::{ColumnLayout, EncodedRowGroup, RowGroupEncoder, RowGroupSink};
+use crate::io::provenance::{Provenance, retire_stale_records};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
 
@@ -95,6 +96,8 @@ pub struct OutputOptions {
     pub shard: Option<Shard>,
     /// Target rows of `paths.parquet` per row group (whole scenarios, at least one).
     pub row_group_rows: usize,
+    /// The run every file records (key-value metadata).
+    pub provenance: Provenance,
 }
 
 impl OutputOptions {
@@ -449,8 +452,14 @@ pub fn write_projection(
         let layouts = column_layouts(&schema);
         if wanted {
             let path = options.file(stem);
-            let (sink, encoder) =
-                RowGroupSink::create(&path, schema, options.compression, description, &layouts)?;
+            let (sink, encoder) = RowGroupSink::create(
+                &path,
+                schema,
+                options.compression,
+                description,
+                &options.provenance,
+                &layouts,
+            )?;
             sinks[slot] = Some(sink);
             encoders[slot] = Some(encoder);
             files.push(path);
@@ -512,6 +521,9 @@ pub fn write_projection(
         .flatten()
         .map(RowGroupSink::close)
         .collect::<Result<Vec<_>>>()?;
+    if options.shard.is_none() {
+        retire_stale_records(&options.folder, &options.provenance)?;
+    }
     for file in finished {
         file.commit()?;
     }

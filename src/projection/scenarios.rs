@@ -306,8 +306,9 @@ impl Projector {
         })
     }
 
-    /// Fills `out` with scenario `scenario`; rates outside (0, 1] or non-finite are an error
-    /// naming the scenario, sex, year and age.
+    /// Fills `out` with scenario `scenario`; a rate outside (0, 1) below `max_age` (or
+    /// outside (0, 1] at `max_age`, where the closure sets it to 1), or a non-finite one, is
+    /// an error naming the scenario, sex, year and age.
     pub fn generate(&self, scenario: u64, out: &mut ScenarioPaths) -> Result<()> {
         let s = &self.settings;
         let central_path = scenario == 0;
@@ -380,10 +381,12 @@ impl Projector {
                     Some(c) => model.cohort_rates(k, c.by_age(h + 1), row),
                     None => model.rates(k, row),
                 }
-                if let Some(a) = row.iter().position(|q| !(*q > 0.0 && *q <= 1.0)) {
+                if let Some(a) = first_bad_rate(row) {
                     return Err(Error::Numerical(format!(
-                        "scenario {}, sex {sex}, year {}, age {}: projected rate q = {} is not in (0, 1] \
-                         (indices {:?}); shorten projection.horizon or check the fit",
+                        "scenario {}, sex {sex}, year {}, age {}: projected rate q = {} is not in \
+                         (0, 1) (indices {:?}); the projected index has run so far that the rate \
+                         rounds to 0 or 1 or overflows: shorten projection.horizon or check the \
+                         fit (model.kind, data.years)",
                         out.scenario,
                         out.years.first + h as i32,
                         out.ages.first + a as i32,
@@ -394,5 +397,33 @@ impl Projector {
             }
         }
         Ok(())
+    }
+}
+
+/// The index of the first rate of one year's row (ages up to `max_age`) that no life table
+/// can hold: q must lie in (0, 1) below `max_age`, where q = 1 can only come from an index
+/// driven so far that exp() or the logistic function saturated (a rate of 1 kills every
+/// life at once), and in (0, 1] at `max_age` itself.
+pub fn first_bad_rate(row: &[f64]) -> Option<usize> {
+    let last = row.len().checked_sub(1)?;
+    row.iter().enumerate().position(|(i, &q)| {
+        let below_one = if i == last { q <= 1.0 } else { q < 1.0 };
+        !(q > 0.0 && below_one)
+    })
+}
+
+#[cfg(test)]
+mod guard_tests {
+    use super::first_bad_rate;
+
+    #[test]
+    fn rates_of_zero_or_one_below_the_top_age_are_refused() {
+        assert_eq!(first_bad_rate(&[0.01, 0.5, 1.0]), None);
+        assert_eq!(first_bad_rate(&[0.01, 1.0, 1.0]), Some(1));
+        assert_eq!(first_bad_rate(&[0.0, 0.5, 1.0]), Some(0));
+        assert_eq!(first_bad_rate(&[0.01, f64::NAN, 1.0]), Some(1));
+        assert_eq!(first_bad_rate(&[0.01, 0.5, f64::INFINITY]), Some(2));
+        assert_eq!(first_bad_rate(&[0.01, 0.5, 1.5]), Some(2));
+        assert_eq!(first_bad_rate(&[]), None);
     }
 }

@@ -6,20 +6,25 @@
 //! the config with the same library code a single run uses, so the merged `summary.json` is
 //! byte-identical to the single run's. The config, not a manifest written beside the parts,
 //! is the source of truth: a merge checks each part's scenarios against the block the config
-//! assigns to that shard, which catches parts from another run as well as gaps and overlaps.
+//! assigns to that shard, which catches gaps and overlaps, and each part must carry the run id
+//! of the config (see `io::provenance`), which catches a part of another run (another seed,
+//! say) even when its scenario block fits.
 
 use std::collections::BTreeMap;
 use std::ops::Range;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
 use arrow_array::{Array, Float64Array, RecordBatch, UInt32Array};
+use arrow_schema::Schema;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 use crate::data::config::Compression;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
-use crate::io::AtomicFile;
 use crate::io::parquet::{ParquetSink, SCHEMA_KEY};
+use crate::io::provenance::{RUN_ID_KEY, retire_stale_records};
+use crate::io::{AtomicFile, Provenance};
 use crate::pipeline::{ProjectedFits, ValuationOutcome, ValuationSetup, summarize};
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{Shard, scenario_ids};
@@ -163,6 +168,15 @@ impl Seen {
     }
 }
 
+/// The first 12 characters of a run id, enough to tell runs apart in a message.
+fn short(run_id: &str) -> String {
+    if run_id.is_empty() {
+        "none".to_string()
+    } else {
+        run_id.chars().take(12).collect()
+    }
+}
+
 fn shown(range: &Range<u64>) -> String {
     format!("{}..={}", range.start, range.end.saturating_sub(1))
 }
@@ -174,6 +188,7 @@ pub fn concat_parts(
     stem: &str,
     blocks: &[Range<u64>],
     compression: Compression,
+    provenance: &Provenance,
     each: &mut dyn FnMut(&RecordBatch) -> Result<()>,
 ) -> Result<AtomicFile> {
     let rows_per_group = match stem {
@@ -191,7 +206,29 @@ pub fn concat_parts(
         let file = std::fs::File::open(&path).map_err(|e| Error::io(&path, e))?;
         let builder =
             ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| parquet_error(&e))?;
-        let part_schema = builder.schema().clone();
+        // The columns only: the schema's metadata holds each file's key-value metadata,
+        // which is checked on its own below and written afresh for the merged file.
+        let part_schema = Arc::new(Schema::new(builder.schema().fields().clone()));
+        let kv = |key: &str| {
+            builder
+                .metadata()
+                .file_metadata()
+                .key_value_metadata()
+                .and_then(|kv| kv.iter().find(|k| k.key == key))
+                .and_then(|k| k.value.clone())
+        };
+        let part_run = kv(RUN_ID_KEY).unwrap_or_default();
+        if part_run != provenance.run_id {
+            return Err(file_error(
+                &path,
+                format!(
+                    "was written by another run (run id `{}`, this config's is `{}`): its \
+                     seed, scenarios, inputs or version differ from the config's",
+                    short(&part_run),
+                    short(&provenance.run_id)
+                ),
+            ));
+        }
         match &schema {
             None => schema = Some(part_schema.clone()),
             Some(s) if *s != part_schema => {
@@ -203,18 +240,13 @@ pub fn concat_parts(
             Some(_) => {}
         }
         if sink.is_none() {
-            let description = builder
-                .metadata()
-                .file_metadata()
-                .key_value_metadata()
-                .and_then(|kv| kv.iter().find(|k| k.key == SCHEMA_KEY))
-                .and_then(|k| k.value.clone())
-                .unwrap_or_default();
+            let description = kv(SCHEMA_KEY).unwrap_or_default();
             sink = Some(ParquetSink::create(
                 set.folder.join(format!("{stem}.parquet")),
                 part_schema.clone(),
                 compression,
                 &description,
+                provenance,
                 rows_per_group,
             )?);
         }
@@ -324,22 +356,31 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
         })
         .collect::<Result<Vec<_>>>()?;
     let compression = config.output.compression;
+    let provenance = crate::pipeline::provenance(config)?;
     let mut outcome = ValuationOutcome::default();
     let mut pending = Vec::new();
     let mut files = Vec::new();
     for &stem in &parts.stems {
         let file = if stem == "book" {
             let path = parts.part("book", 1);
-            concat_parts(&parts, stem, &blocks, compression, &mut |batch| {
-                collect_book(&mut outcome, batch, &path)
-            })?
+            concat_parts(
+                &parts,
+                stem,
+                &blocks,
+                compression,
+                &provenance,
+                &mut |batch| collect_book(&mut outcome, batch, &path),
+            )?
         } else {
-            concat_parts(&parts, stem, &blocks, compression, &mut |_| Ok(()))?
+            concat_parts(&parts, stem, &blocks, compression, &provenance, &mut |_| {
+                Ok(())
+            })?
         };
         pending.push(file);
         files.push(folder.join(format!("{stem}.parquet")));
     }
-    let summary = summarize_config(config, &outcome)?;
+    let summary = summarize_config(config, &provenance, &outcome)?;
+    retire_stale_records(folder, &provenance)?;
     for file in pending {
         file.commit()?;
     }
@@ -352,7 +393,11 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
 
 /// The summary of the run `config` describes from its per-scenario figures, recomputing the
 /// central-path figures (stress, one-year refits) as a single run does.
-pub fn summarize_config(config: &Config, outcome: &ValuationOutcome) -> Result<RunSummary> {
+pub fn summarize_config(
+    config: &Config,
+    provenance: &Provenance,
+    outcome: &ValuationOutcome,
+) -> Result<RunSummary> {
     let experience = Experience::from_config(config)?;
     let book = Book::from_config(config)?
         .ok_or_else(|| Error::config(&config.file, "data.book", "a merge needs the run's book"))?;
@@ -362,7 +407,15 @@ pub fn summarize_config(config: &Config, outcome: &ValuationOutcome) -> Result<R
     // The central path and the scenarios the one-year refits follow.
     projector.prepare(0..one_year + 1)?;
     let setup = ValuationSetup::new(config, book, &projector)?;
-    summarize(config, &fits, &experience, &setup, &projector, outcome)
+    summarize(
+        config,
+        provenance,
+        &fits,
+        &experience,
+        &setup,
+        &projector,
+        outcome,
+    )
 }
 
 #[cfg(test)]

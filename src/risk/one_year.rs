@@ -78,7 +78,12 @@ fn one_scenario(
     for (i, &sex) in basis.sexes().iter().enumerate() {
         let population = &recalibration.populations[i];
         let extended = extend(population, paths, i, new_years, &mut rng)?;
-        let refit = recalibration.specs[i].fit(&extended)?;
+        let refit = recalibration.specs[i].fit(&extended).map_err(|e| {
+            Error::model(
+                "one-year",
+                format!("scenario {scenario}, sex {sex}: the re-calibration refit failed: {e}"),
+            )
+        })?;
         refits.push((sex, Arc::from(refit)));
     }
     // The refitted central path: no noise, no parameter uncertainty.

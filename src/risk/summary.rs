@@ -49,6 +49,8 @@ pub struct RunInfo {
     pub tool: &'static str,
     /// Crate version.
     pub version: &'static str,
+    /// The run's id: the same in every file the run wrote (see `io::provenance`).
+    pub run_id: String,
     /// Seed of every random stream.
     pub seed: u64,
     /// Stochastic scenarios (scenario 0, the central path, comes on top).
@@ -57,6 +59,8 @@ pub struct RunInfo {
     pub model: String,
     /// Valuation year.
     pub valuation_year: i32,
+    /// SHA-256 of the config file.
+    pub config_sha256: String,
     /// Input files and their SHA-256.
     pub inputs: Vec<InputHash>,
 }

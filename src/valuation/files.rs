@@ -90,6 +90,7 @@ fn sink(
         schema,
         compression,
         description,
+        &options.provenance,
         ROWS_PER_GROUP,
     )
 }

@@ -45,6 +45,8 @@ pub struct RunInfo {
     pub run_at: String,
     /// The config file of the run.
     pub config_path: Option<String>,
+    /// The run's id, as recorded in every file it wrote (see `io::provenance`).
+    pub run_id: Option<String>,
     /// Master seed of the random streams.
     pub seed: Option<u64>,
     /// Number of scenarios simulated.

@@ -203,6 +203,7 @@ impl ReportData {
                 tool_version: crate::VERSION.to_string(),
                 run_at: "2026-12-02T05:00:00Z".to_string(),
                 config_path: Some("configs/demo.toml".to_string()),
+                run_id: None,
                 seed: Some(20_261_202),
                 scenarios: Some(SCENARIOS as u64),
                 models: vec![

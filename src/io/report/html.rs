@@ -98,6 +98,15 @@ pub fn page(data: &ReportData) -> Result<String> {
     let mut out = String::with_capacity(1 << 20);
     out.push_str("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\" />\n");
     out.push_str("<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\" />\n");
+    // The run id early in the head, where `io::provenance` looks for it.
+    if let Some(id) = &data.run.run_id {
+        let _ = writeln!(
+            out,
+            "<meta name=\"{}\" content=\"{}\" />",
+            crate::io::provenance::REPORT_META_NAME,
+            escape(id)
+        );
+    }
     let _ = writeln!(out, "<title>{}</title>", escape(&data.title));
     let _ = writeln!(out, "<style>{STYLE}</style>\n</head>\n<body>");
     let _ = writeln!(out, "<header>\n<h1>{}</h1>", escape(&data.title));
@@ -501,6 +510,9 @@ fn run_section(run: &RunInfo) -> Section {
     ];
     if let Some(c) = &run.config_path {
         items.push(("Config".into(), c.clone()));
+    }
+    if let Some(id) = &run.run_id {
+        items.push(("Run id".into(), id.clone()));
     }
     if let Some(s) = run.seed {
         items.push(("Seed".into(), s.to_string()));
