@@ -75,6 +75,7 @@ fn forecast(series: &CohortSeries, gamma: &[f64], h: usize) -> Forecast {
     let hf = h as f64;
     match series.kind {
         CohortSeriesKind::Ar1Trend => {
+            // Trend-stationary AR(1) forecast (Hamilton 1994, ch. 4 — from memory).
             let beta = series.trend / (1.0 - phi);
             let alpha = (series.intercept - phi * beta) / (1.0 - phi);
             let nf = n as f64;
@@ -91,6 +92,7 @@ fn forecast(series: &CohortSeries, gamma: &[f64], h: usize) -> Forecast {
             }
         }
         CohortSeriesKind::Arima110Drift => {
+            // Integrated AR(1) forecast through its ψ-weights (Box & Jenkins — from memory).
             let delta = series.intercept / (1.0 - phi);
             let diff = last - gamma[n - 2];
             let mean =
@@ -109,7 +111,8 @@ fn forecast(series: &CohortSeries, gamma: &[f64], h: usize) -> Forecast {
     }
 }
 
-/// OLS covariance of the intercept (and trend) given φ: σ² (X_AᵀX_A)⁻¹.
+/// OLS covariance of the intercept (and trend) given φ: σ² (X_AᵀX_A)⁻¹ (the standard
+/// least-squares result, e.g. Greene, Econometric Analysis — from memory).
 fn terms_covariance(series: &CohortSeries, n: usize) -> [[f64; 2]; 2] {
     let s2 = series.sigma2;
     match series.kind {
