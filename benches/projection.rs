@@ -12,7 +12,7 @@
 //!
 //! which prints the wall time and the file sizes instead of running criterion.
 
-#[path = "../tests/projection_support/mod.rs"]
+#[path = "../tests/suite/projection_support/mod.rs"]
 mod projection_support;
 
 use std::time::Instant;

@@ -1,7 +1,7 @@
 //! The Parquet outputs read back with the parquet crate's own row reader (independent of
 //! the writer), across thread counts and shard splits.
 
-mod projection_support;
+use crate::projection_support;
 
 use std::fs::File;
 use std::path::Path;

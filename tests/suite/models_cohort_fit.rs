@@ -1,7 +1,7 @@
 //! Cohort models through the config, `fit.json` and the binary; frozen cohort rates; and
 //! models that the data cannot identify.
 
-mod models_support;
+use crate::models_support;
 
 use std::path::Path;
 use std::process::Command;

@@ -5,7 +5,7 @@
 //! & Dowd 2006), and scipy.optimize (BFGS on the full Poisson likelihood) for the Poisson
 //! Lee–Carter fit (Brouhns, Denuit & Vermunt 2002).
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use tailspan::models::{FittedModel, LeeCarterMethod};

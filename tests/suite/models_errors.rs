@@ -1,6 +1,6 @@
 //! Bad data and impossible settings give clear model errors, never a silent result.
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use nalgebra::DMatrix;

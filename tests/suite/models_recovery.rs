@@ -7,7 +7,7 @@
 //! I = Σ_cells n q (1 − q) z zᵀ. Each estimate must lie within 4.5 standard errors of the
 //! truth, and the mean squared standardised error must be near 1.
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use nalgebra::{DMatrix, DVector};

@@ -1,6 +1,6 @@
 //! `fit.json` and `residuals.parquet` from a config and an in-memory experience.
 
-mod models_support;
+use crate::models_support;
 
 use std::path::Path;
 

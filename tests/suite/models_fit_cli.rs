@@ -1,7 +1,7 @@
 //! `tailspan fit CONFIG` through the binary: outputs on success, exit code 2 and a clear
 //! message on bad input.
 
-mod models_support;
+use crate::models_support;
 
 use std::path::Path;
 use std::process::Command;

@@ -21,8 +21,8 @@
 //! Tolerances are four Monte Carlo standard errors: σ/√N for a mean, σ² √(2/(N − 1)) for a
 //! normal variance, (1 − ρ²)/√N for a correlation (Fisher's large-sample result).
 
-mod models_support;
-mod projection_support;
+use crate::models_support;
+use crate::projection_support;
 
 use std::path::Path;
 

@@ -6,7 +6,7 @@
 //! identifiability constraints; and statsmodels' AutoReg (conditional maximum likelihood)
 //! for the cohort-index time series.
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use tailspan::data::config::CohortSeriesKind;

@@ -10,7 +10,7 @@
 //! normal variance, √((σ1² σ2² + σ12²)/N) for a normal covariance, and (1 − ρ²)/√N for a
 //! correlation (Fisher's large-sample result).
 
-mod projection_support;
+use crate::projection_support;
 
 use projection_support::{AGES, cbd_pair, log_rate_pair};
 use tailspan::projection::{Projector, Settings, Uncertainty};

@@ -11,7 +11,7 @@
 //! parameter group, or pooled over all parameters for Renshaw–Haberman, whose a_x errors
 //! are strongly correlated).
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use nalgebra::{DMatrix, DVector};

@@ -1,6 +1,6 @@
 //! The Kannisto closure and the closed tables every fitted model hands the projection.
 
-mod models_support;
+use crate::models_support;
 
 use models_support::*;
 use tailspan::life::closure::{Kannisto, KannistoClosure};
