@@ -178,7 +178,7 @@ pub fn concat_parts(
 ) -> Result<AtomicFile> {
     let rows_per_group = match stem {
         "paths" | "factors" | "period" => ROW_GROUP_ROWS,
-        _ => crate::valuation::files::ROWS_PER_GROUP,
+        _ => crate::valuation::files::rows_per_group(stem),
     };
     let mut sink: Option<ParquetSink> = None;
     let mut schema = None;
@@ -288,6 +288,7 @@ fn collect_book(outcome: &mut ValuationOutcome, batch: &RecordBatch, path: &Path
             central.pv_simulated = pv_simulated;
             continue;
         }
+        outcome.stochastic += 1;
         outcome.scenarios.push(u64::from(ids.value(i)));
         outcome.pv_expected.push(expected.value(i));
         if !simulated.is_null(i) {
