@@ -2,6 +2,7 @@
 
 pub mod atomic;
 pub mod hash;
+pub mod memory;
 pub mod parquet;
 pub mod report;
 
