@@ -24,6 +24,7 @@ use crate::pipeline::{ProjectedFits, ValuationOutcome, ValuationSetup, summarize
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{Shard, scenario_ids};
 use crate::risk::summary::RunSummary;
+use crate::valuation::files::WrittenBook;
 
 /// The kinds of part file a merge knows, in the order they are merged.
 pub const STEMS: [&str; 6] = [
@@ -260,7 +261,8 @@ pub fn concat_parts(
         .close()
 }
 
-/// Collects `book.parquet` rows into the per-scenario figures of a [`ValuationOutcome`].
+/// Takes the central path's figures from `book.parquet` rows and counts the stochastic
+/// scenarios; the capital figures read the stochastic PVs back from the merged file.
 fn collect_book(outcome: &mut ValuationOutcome, batch: &RecordBatch, path: &Path) -> Result<()> {
     let column = |name: &str| {
         batch
@@ -289,11 +291,6 @@ fn collect_book(outcome: &mut ValuationOutcome, batch: &RecordBatch, path: &Path
             continue;
         }
         outcome.stochastic += 1;
-        outcome.scenarios.push(u64::from(ids.value(i)));
-        outcome.pv_expected.push(expected.value(i));
-        if !simulated.is_null(i) {
-            outcome.pv_simulated.push(pv_simulated);
-        }
     }
     Ok(())
 }
@@ -331,9 +328,11 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
     for &stem in &parts.stems {
         let file = if stem == "book" {
             let path = parts.part("book", 1);
-            concat_parts(&parts, stem, &blocks, compression, &mut |batch| {
+            let mut file = concat_parts(&parts, stem, &blocks, compression, &mut |batch| {
                 collect_book(&mut outcome, batch, &path)
-            })?
+            })?;
+            outcome.book = Some(WrittenBook::reopen(&mut file)?);
+            file
         } else {
             concat_parts(&parts, stem, &blocks, compression, &mut |_| Ok(()))?
         };
