@@ -67,6 +67,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
         ids,
         options: &options,
         keep_values: true,
+        report: false,
         extracts: &extracts,
     };
     let bar = Progress::new("valuing", request.ids.end - request.ids.start, quiet);

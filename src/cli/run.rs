@@ -114,6 +114,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             ids,
             options: &options,
             keep_values: config.hedge.is_some(),
+            report: true,
             extracts: &extracts,
         };
         let bar = Progress::new("valuing", request.ids.end - request.ids.start, quiet);

@@ -61,6 +61,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
         ids,
         options: &options,
         keep_values: false,
+        report: false,
         extracts: &Extracts::default(),
     };
     let (outcome, files) = value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;

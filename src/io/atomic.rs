@@ -57,6 +57,15 @@ impl AtomicFile {
         &self.target
     }
 
+    /// Flushes what is written so far and opens the temporary file again for reading,
+    /// so an output can be read back before it is committed.
+    pub fn reopen(&mut self) -> Result<fs::File> {
+        self.temp
+            .flush()
+            .and_then(|()| self.temp.get_ref().reopen())
+            .map_err(|e| Error::io(&self.target, e))
+    }
+
     /// Flushes, syncs and renames the file into place.
     pub fn commit(self) -> Result<()> {
         let target = self.target;
@@ -212,6 +221,13 @@ mod tests {
         assert!(!is_temporary_of(".a.txt.Ab12x9.partial", "a"));
         assert!(!is_temporary_of(".a.txt.x.y.partial", "a.txt"));
         assert!(!is_temporary_of("a.txt", "a.txt"));
+        let mut f = AtomicFile::create(&target).unwrap();
+        f.write_all(b"read back").unwrap();
+        let mut text = String::new();
+        std::io::Read::read_to_string(&mut f.reopen().unwrap(), &mut text).unwrap();
+        assert_eq!(text, "read back");
+        drop(f);
+        assert!(!target.exists());
         write_bytes(&target, b"whole").unwrap();
         assert_eq!(fs::read(&target).unwrap(), b"whole");
         #[cfg(unix)]

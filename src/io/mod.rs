@@ -3,6 +3,7 @@
 pub mod atomic;
 pub mod finite;
 pub mod hash;
+pub mod memory;
 pub mod parquet;
 pub mod provenance;
 pub mod report;

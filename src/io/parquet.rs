@@ -58,12 +58,26 @@ impl ParquetSink {
         rows_per_group: usize,
     ) -> Result<Self> {
         let path = path.as_ref().to_path_buf();
-        let props = base_properties(compression, description, provenance)
+        // The writer keeps every page's statistics and offsets (the page index) until the
+        // footer, so they grow with the rows of a long run; min/max per column chunk is
+        // what readers prune row groups on, and all that `RowGroupSink` files carry too.
+        let mut props = base_properties(compression, description, provenance)
             .set_max_row_group_row_count(Some(rows_per_group.max(1)))
-            .build();
+            .set_statistics_enabled(EnabledStatistics::Chunk)
+            .set_offset_index_disabled(true);
+        // Measured floats rarely repeat: a dictionary hashes every value and holds up to
+        // 1 MB of them (131,072 f64) per column before falling back to plain encoding;
+        // for the valuation files its tables were 20 MB of the heap (massif, 30,000
+        // scenarios) and made the files 20 % larger.
+        for field in schema.fields() {
+            if field.data_type() == &arrow_schema::DataType::Float64 {
+                props = props
+                    .set_column_dictionary_enabled(ColumnPath::from(field.name().as_str()), false);
+            }
+        }
         let file = AtomicFile::create(&path)?;
-        let writer =
-            ArrowWriter::try_new(file, schema, Some(props)).map_err(|e| parquet_error(&path, e))?;
+        let writer = ArrowWriter::try_new(file, schema, Some(props.build()))
+            .map_err(|e| parquet_error(&path, e))?;
         Ok(ParquetSink {
             path,
             writer,

@@ -28,10 +28,11 @@ use crate::projection::{
     BootstrapSource, OutputOptions, Projector, Settings, Uncertainty, scenario_ids,
 };
 use crate::risk::one_year::{Recalibration, one_year_values};
+use crate::risk::order::{HELD, Streamed};
 use crate::risk::summary::{OneYearFigures, RunInfo, RunSummary};
 use crate::risk::{CapitalSummary, StressFigures};
 use crate::valuation::driver::surfaces;
-use crate::valuation::files::ValuationFiles;
+use crate::valuation::files::{ValuationFiles, WrittenBook};
 use crate::valuation::{
     Basis, DriverSettings, Extracts, LevelAdjustment, LifetimeTable, PreparedBook, ScenarioValue,
     Workspace, value_scenarios,
@@ -154,32 +155,38 @@ impl ValuationSetup {
 pub struct ValuationOutcome {
     /// Scenario 0 (the central path), if it was in the range valued.
     pub central: Option<ScenarioValue>,
-    /// Scenario numbers of the stochastic scenarios valued, in order.
+    /// Stochastic scenarios valued.
+    pub stochastic: usize,
+    /// Scenario numbers of the stochastic scenarios valued, in order, when their PVs or
+    /// values are kept.
     pub scenarios: Vec<u64>,
-    /// Their trend-only PVs.
+    /// Their trend-only PVs, when kept.
     pub pv_expected: Vec<f64>,
-    /// Their PVs with deaths simulated (empty without idiosyncratic risk).
+    /// Their PVs with deaths simulated, when kept (empty without idiosyncratic risk).
     pub pv_simulated: Vec<f64>,
+    /// The written `book.parquet`, from which the capital figures read the PVs again
+    /// when they are not kept.
+    pub book: Option<WrittenBook>,
     /// Their full values, when kept for the hedges.
     pub values: Vec<ScenarioValue>,
     /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario, for
-    /// the first [`LIFETIME_SCENARIOS_KEPT`] scenarios only (every scenario's are in
+    /// the report: the first [`LIFETIME_SCENARIOS_KEPT`] scenarios only (every scenario's are in
     /// `lifetimes.parquet`).
     pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
     /// The requested cells' q on the central path.
     pub central_probes: Vec<f64>,
-    /// The requested cells' q per stochastic scenario (the first
-    /// [`LIFETIME_SCENARIOS_KEPT`] only, unless the values are kept for the hedges).
+    /// The requested cells' q per stochastic scenario (for the report, the first
+    /// [`LIFETIME_SCENARIOS_KEPT`] only; for the hedges, all).
     pub probes: Vec<Vec<f64>>,
-    /// Period e°65 by sex and projected year, per stochastic scenario (the first
-    /// [`LIFETIME_SCENARIOS_KEPT`] only).
+    /// Period e°65 by sex and projected year, per stochastic scenario (for the report,
+    /// the first [`LIFETIME_SCENARIOS_KEPT`] only).
     pub period: Vec<Vec<f64>>,
 }
 
-/// Stochastic scenarios whose whole-future e°x a [`ValuationOutcome`] keeps in memory:
-/// enough for a fan chart, and a bound so that a million-scenario run's memory does not
-/// grow with its cohorts times its scenarios (the per-scenario PVs, 16 bytes each, are all
-/// that grows).
+/// Stochastic scenarios whose whole-future e°x a [`ValuationOutcome`] keeps in memory for
+/// the report: enough for a fan chart, and a bound so that a million-scenario run's memory
+/// does not grow with its cohorts times its scenarios (with a report, the per-scenario
+/// PVs, 24 bytes each, are all that grows).
 pub const LIFETIME_SCENARIOS_KEPT: usize = 10_000;
 
 /// Which scenarios to value, where to write, and what to keep.
@@ -190,6 +197,11 @@ pub struct ValueRequest<'a> {
     pub options: &'a OutputOptions,
     /// Keep every scenario's full values (the hedges need the cash flows).
     pub keep_values: bool,
+    /// Keep what the report draws: every scenario's PVs (its histogram) and the chart
+    /// inputs of the first [`LIFETIME_SCENARIOS_KEPT`] scenarios. Without a report nothing
+    /// per scenario stays in memory: the capital figures read the PVs back from
+    /// `book.parquet`, so memory does not grow with the scenario count.
+    pub report: bool,
     /// Cells and period figures to read off each scenario.
     pub extracts: &'a Extracts,
 }
@@ -207,9 +219,10 @@ pub fn value_book(
         ids,
         options,
         keep_values,
+        report,
         extracts,
     } = request;
-    let (ids, keep_values) = (ids.clone(), *keep_values);
+    let (ids, keep_values, report) = (ids.clone(), *keep_values, *report);
     let settings = DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
@@ -219,10 +232,14 @@ pub fn value_book(
     // Exact capacity: growth by doubling would hold up to twice the per-scenario figures,
     // and three times while a grown vector is copied.
     let n = (ids.end - ids.start) as usize;
-    outcome.scenarios.reserve_exact(n);
-    outcome.pv_expected.reserve_exact(n);
-    if settings.idiosyncratic {
-        outcome.pv_simulated.reserve_exact(n);
+    if report || keep_values {
+        outcome.scenarios.reserve_exact(n);
+    }
+    if report {
+        outcome.pv_expected.reserve_exact(n);
+        if settings.idiosyncratic {
+            outcome.pv_simulated.reserve_exact(n);
+        }
     }
     value_scenarios(
         projector,
@@ -241,26 +258,35 @@ pub fn value_book(
                 }
                 // Chart inputs are bounded like the lifetimes; the hedges need every
                 // scenario's reference cells, as they need every scenario's values.
-                let keep_charts = outcome.scenarios.len() < LIFETIME_SCENARIOS_KEPT;
+                let keep_charts = report && outcome.stochastic < LIFETIME_SCENARIOS_KEPT;
                 if !r.probes.is_empty() && (keep_values || keep_charts) {
                     outcome.probes.push(r.probes.clone());
                 }
                 if !r.period.is_empty() && keep_charts {
                     outcome.period.push(r.period.clone());
                 }
-                outcome.scenarios.push(r.scenario);
-                outcome.pv_expected.push(r.value.pv_expected);
-                if settings.idiosyncratic {
-                    outcome.pv_simulated.push(r.value.pv_simulated);
+                outcome.stochastic += 1;
+                if report || keep_values {
+                    outcome.scenarios.push(r.scenario);
                 }
-                let keep_lifetimes = outcome.scenarios.len() <= LIFETIME_SCENARIOS_KEPT;
+                if report {
+                    outcome.pv_expected.push(r.value.pv_expected);
+                    if settings.idiosyncratic {
+                        outcome.pv_simulated.push(r.value.pv_simulated);
+                    }
+                }
+                let keep_lifetimes = report && outcome.stochastic <= LIFETIME_SCENARIOS_KEPT;
                 for row in r.lifetimes.iter().filter(|l| {
                     keep_lifetimes && l.horizon as i32 == whole_future_horizon(l, setup)
                 }) {
                     let key = (row.sex, row.age);
                     match outcome.lifetimes.iter_mut().find(|(k, _)| *k == key) {
                         Some((_, v)) => v.push(row.e_complete),
-                        None => outcome.lifetimes.push((key, vec![row.e_complete])),
+                        None => {
+                            let mut v = Vec::with_capacity(n.min(LIFETIME_SCENARIOS_KEPT));
+                            v.push(row.e_complete);
+                            outcome.lifetimes.push((key, v));
+                        }
                     }
                 }
                 if keep_values {
@@ -271,7 +297,11 @@ pub fn value_book(
             Ok(())
         },
     )?;
-    Ok((outcome, files.close()?))
+    let mut files = files.close()?;
+    if !report {
+        outcome.book = Some(WrittenBook::reopen(&mut files[0])?);
+    }
+    Ok((outcome, files))
 }
 
 /// The whole-future horizon of a lifetime row's cohort.
@@ -322,20 +352,40 @@ pub fn summarize(
         .ok_or_else(|| Error::model("valuation", "the central path (scenario 0) was not valued"))?;
     let best_estimate = central.pv_expected;
     let levels = &config.capital.levels;
-    // Without noise the central path is the only scenario; its figures stand alone.
-    let (trend_values, simulated_values) = if outcome.pv_expected.is_empty() {
-        let simulated = if config.valuation.idiosyncratic {
-            vec![central.pv_simulated]
-        } else {
-            Vec::new()
-        };
-        (vec![best_estimate], simulated)
-    } else {
-        (outcome.pv_expected.clone(), outcome.pv_simulated.clone())
+    let idiosyncratic = config.valuation.idiosyncratic;
+    let capital = |values: &[f64]| CapitalSummary::new(values, best_estimate, levels);
+    let (trend, trend_idiosyncratic) = match &outcome.book {
+        // Without noise the central path is the only scenario; its figures stand alone.
+        _ if outcome.stochastic == 0 => (
+            capital(&[best_estimate]),
+            idiosyncratic.then(|| capital(&[central.pv_simulated])),
+        ),
+        Some(book) => {
+            let streamed = |column| -> Result<CapitalSummary> {
+                let values = book.column(column);
+                let sample = Streamed::new(&values, HELD)?;
+                if sample.stats().count != outcome.stochastic {
+                    return Err(Error::model(
+                        "valuation",
+                        format!(
+                            "book.parquet holds {} values of `{column}` for {} scenarios",
+                            sample.stats().count,
+                            outcome.stochastic
+                        ),
+                    ));
+                }
+                CapitalSummary::streamed(&sample, best_estimate, levels)
+            };
+            let simulated = idiosyncratic
+                .then(|| streamed("pv_simulated"))
+                .transpose()?;
+            (streamed("pv_expected")?, simulated)
+        }
+        None => (
+            capital(&outcome.pv_expected),
+            (!outcome.pv_simulated.is_empty()).then(|| capital(&outcome.pv_simulated)),
+        ),
     };
-    let trend = CapitalSummary::new(&trend_values, best_estimate, levels);
-    let trend_idiosyncratic = (!simulated_values.is_empty())
-        .then(|| CapitalSummary::new(&simulated_values, best_estimate, levels));
     let decrease = config.capital.standard_stress;
     let stressed = setup.central_value(projector, 1.0 - decrease)?;
     let one_year = if config.capital.one_year && config.projection.noise {
@@ -361,7 +411,7 @@ pub fn summarize(
             version: crate::VERSION,
             run_id: provenance.run_id.clone(),
             seed: config.projection.seed,
-            scenarios: outcome.pv_expected.len(),
+            scenarios: outcome.stochastic,
             model: fits.kind.to_string(),
             valuation_year: setup.year,
             config_sha256: provenance.config_sha256.clone(),

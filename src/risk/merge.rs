@@ -29,6 +29,7 @@ use crate::pipeline::{ProjectedFits, ValuationOutcome, ValuationSetup, summarize
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{Shard, scenario_ids};
 use crate::risk::summary::RunSummary;
+use crate::valuation::files::WrittenBook;
 
 /// The kinds of part file a merge knows, in the order they are merged.
 pub const STEMS: [&str; 6] = [
@@ -193,7 +194,7 @@ pub fn concat_parts(
 ) -> Result<AtomicFile> {
     let rows_per_group = match stem {
         "paths" | "factors" | "period" => ROW_GROUP_ROWS,
-        _ => crate::valuation::files::ROWS_PER_GROUP,
+        _ => crate::valuation::files::rows_per_group(stem),
     };
     let mut sink: Option<ParquetSink> = None;
     let mut schema = None;
@@ -292,7 +293,8 @@ pub fn concat_parts(
         .close()
 }
 
-/// Collects `book.parquet` rows into the per-scenario figures of a [`ValuationOutcome`].
+/// Takes the central path's figures from `book.parquet` rows and counts the stochastic
+/// scenarios; the capital figures read the stochastic PVs back from the merged file.
 fn collect_book(outcome: &mut ValuationOutcome, batch: &RecordBatch, path: &Path) -> Result<()> {
     let column = |name: &str| {
         batch
@@ -320,11 +322,7 @@ fn collect_book(outcome: &mut ValuationOutcome, batch: &RecordBatch, path: &Path
             central.pv_simulated = pv_simulated;
             continue;
         }
-        outcome.scenarios.push(u64::from(ids.value(i)));
-        outcome.pv_expected.push(expected.value(i));
-        if !simulated.is_null(i) {
-            outcome.pv_simulated.push(pv_simulated);
-        }
+        outcome.stochastic += 1;
     }
     Ok(())
 }
@@ -363,14 +361,11 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
     for &stem in &parts.stems {
         let file = if stem == "book" {
             let path = parts.part("book", 1);
-            concat_parts(
-                &parts,
-                stem,
-                &blocks,
-                compression,
-                &provenance,
-                &mut |batch| collect_book(&mut outcome, batch, &path),
-            )?
+            let mut file = concat_parts(&parts, stem, &blocks, compression, &provenance, &mut |batch| {
+                collect_book(&mut outcome, batch, &path)
+            })?;
+            outcome.book = Some(WrittenBook::reopen(&mut file)?);
+            file
         } else {
             concat_parts(&parts, stem, &blocks, compression, &provenance, &mut |_| {
                 Ok(())

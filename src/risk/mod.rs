@@ -6,6 +6,7 @@
 pub mod capital;
 pub mod merge;
 pub mod one_year;
+pub mod order;
 pub mod quantile;
 pub mod summary;
 

@@ -5,20 +5,56 @@
 //! Parquet columns with one library call. TVaR follows DESIGN.md: the mean of the values at
 //! or above VaR.
 
+/// Where the type-7 quantile at probability p of n sorted values lies: order statistics
+/// `lo` and `hi` (zero-based) and the fraction of the way from one to the other.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Type7 {
+    /// The lower order statistic.
+    pub lo: usize,
+    /// The upper order statistic.
+    pub hi: usize,
+    frac: f64,
+    single: bool,
+}
+
+impl Type7 {
+    /// The position for `n` (non-zero) values at `p` in [0, 1].
+    pub fn new(n: usize, p: f64) -> Self {
+        debug_assert!(n > 0);
+        debug_assert!((0.0..=1.0).contains(&p));
+        if n == 1 {
+            return Type7 {
+                lo: 0,
+                hi: 0,
+                frac: 0.0,
+                single: true,
+            };
+        }
+        // h = (n − 1) p on zero-based order statistics.
+        let h = (n - 1) as f64 * p;
+        let lo = h.floor() as usize;
+        Type7 {
+            lo,
+            hi: (lo + 1).min(n - 1),
+            frac: h - lo as f64,
+            single: false,
+        }
+    }
+
+    /// The quantile from the values of order statistics `lo` and `hi`.
+    pub fn interpolate(&self, lo: f64, hi: f64) -> f64 {
+        if self.single {
+            lo
+        } else {
+            lo + self.frac * (hi - lo)
+        }
+    }
+}
+
 /// Hyndman–Fan type 7 quantile of a sorted, non-empty sample at probability `p` in [0, 1].
 pub fn quantile_sorted(sorted: &[f64], p: f64) -> f64 {
-    debug_assert!(!sorted.is_empty());
-    debug_assert!((0.0..=1.0).contains(&p));
-    let n = sorted.len();
-    if n == 1 {
-        return sorted[0];
-    }
-    // h = (n − 1) p on zero-based order statistics.
-    let h = (n - 1) as f64 * p;
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(n - 1);
-    let frac = h - lo as f64;
-    sorted[lo] + frac * (sorted[hi] - sorted[lo])
+    let t = Type7::new(sorted.len(), p);
+    t.interpolate(sorted[t.lo], sorted[t.hi])
 }
 
 /// Tail value at risk at level `p`: the mean of the sorted values at or above VaR_p.

@@ -7,16 +7,23 @@
 //! join without casts. Simulated columns are null when individual deaths are not simulated.
 //! All three are closed together and committed only when the run has succeeded.
 
+use std::fs::File;
+use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array};
+use arrow_array::{
+    Array, ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array,
+};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
+use parquet::arrow::ProjectionMask;
+use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
 use crate::io::parquet::ParquetSink;
 use crate::projection::OutputOptions;
+use crate::risk::order::Sample;
 use crate::valuation::driver::ScenarioResult;
 
 const BOOK_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
@@ -33,9 +40,25 @@ const LIFETIMES_DESCRIPTION: &str = "scenario: scenario number; sex: F or M; age
 
 /// Rows per row group of the valuation files. The writer holds a whole row group in memory
 /// before it flushes, so this bounds memory whatever the scenario count: 2^17 rows of
-/// `lifetimes` are about 6 MB, and a million-scenario run keeps the footprint of a
-/// ten-thousand-scenario one; groups this size still compress and scan well.
+/// `lifetimes` (about 1,700 scenarios of the 1,000-policy bench book) are a few MB
+/// encoded, and a million-scenario run keeps the buffers of a ten-thousand-scenario one;
+/// groups this size still compress and scan well.
 pub const ROWS_PER_GROUP: usize = 1 << 17;
+
+/// Rows per row group of `book.parquet`, one row a scenario: at [`ROWS_PER_GROUP`] its
+/// buffer would grow until 131,072 scenarios (2.6 MB), so a run of 10,000 would hold a
+/// tenth of what a run of a million holds; at 2^14 rows (330 KB) the difference is a
+/// few hundred KB.
+pub const BOOK_ROWS_PER_GROUP: usize = 1 << 14;
+
+/// Rows per row group of a valuation file (`book`, `cashflows`, `lifetimes`).
+pub fn rows_per_group(stem: &str) -> usize {
+    if stem == "book" {
+        BOOK_ROWS_PER_GROUP
+    } else {
+        ROWS_PER_GROUP
+    }
+}
 
 /// The valuation files being written.
 pub struct ValuationFiles {
@@ -91,7 +114,7 @@ fn sink(
         compression,
         description,
         &options.provenance,
-        ROWS_PER_GROUP,
+        rows_per_group(stem),
     )
 }
 
@@ -206,12 +229,85 @@ impl ValuationFiles {
         Ok(())
     }
 
-    /// Writes the footers; the files stay under temporary names until committed.
+    /// Writes the footers; the files stay under temporary names until committed. The
+    /// book comes first, then the cash flows and the lifetimes.
     pub fn close(self) -> Result<Vec<AtomicFile>> {
         let mut files = vec![self.book.close()?, self.cashflows.close()?];
         if let Some(l) = self.lifetimes {
             files.push(l.close()?);
         }
         Ok(files)
+    }
+}
+
+/// A written `book.parquet`, open for reading before it is committed.
+#[derive(Debug)]
+pub struct WrittenBook {
+    file: File,
+    path: PathBuf,
+}
+
+impl WrittenBook {
+    /// Reopens the closed (not yet committed) `book` file for reading.
+    pub fn reopen(book: &mut AtomicFile) -> Result<Self> {
+        Ok(WrittenBook {
+            file: book.reopen()?,
+            path: book.target().to_path_buf(),
+        })
+    }
+
+    /// The stochastic scenarios' values of PV column `column` (`pv_expected` or
+    /// `pv_simulated`), in scenario order; the central path and nulls are left out.
+    pub fn column(&self, column: &'static str) -> BookColumn<'_> {
+        BookColumn { book: self, column }
+    }
+}
+
+/// One PV column of a [`WrittenBook`], read again on every pass a summary asks for.
+pub struct BookColumn<'a> {
+    book: &'a WrittenBook,
+    column: &'static str,
+}
+
+/// Rows decoded at a time when reading the book back.
+const READ_BATCH_ROWS: usize = 8192;
+
+fn read_error(path: &Path, e: impl std::fmt::Display) -> Error {
+    Error::Parquet {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    }
+}
+
+impl Sample for BookColumn<'_> {
+    fn pass(&self, each: &mut dyn FnMut(f64)) -> Result<()> {
+        let path = &self.book.path;
+        let file = self.book.file.try_clone().map_err(|e| Error::io(path, e))?;
+        let builder =
+            ParquetRecordBatchReaderBuilder::try_new(file).map_err(|e| read_error(path, e))?;
+        let mask = ProjectionMask::columns(builder.parquet_schema(), ["scenario", self.column]);
+        let reader = builder
+            .with_projection(mask)
+            .with_batch_size(READ_BATCH_ROWS)
+            .build()
+            .map_err(|e| read_error(path, e))?;
+        for batch in reader {
+            let batch = batch.map_err(|e| read_error(path, e))?;
+            let ids = batch
+                .column_by_name("scenario")
+                .and_then(|c| c.as_any().downcast_ref::<UInt32Array>());
+            let values = batch
+                .column_by_name(self.column)
+                .and_then(|c| c.as_any().downcast_ref::<Float64Array>());
+            let (Some(ids), Some(values)) = (ids, values) else {
+                return Err(read_error(path, format!("no `{}` column", self.column)));
+            };
+            for i in 0..batch.num_rows() {
+                if ids.value(i) != 0 && !values.is_null(i) {
+                    each(values.value(i));
+                }
+            }
+        }
+        Ok(())
     }
 }

@@ -142,6 +142,18 @@ fn value_writes_consistent_files_and_summary() {
             assert!((t["capital"].as_f64().unwrap() - (var - be)).abs() < 1e-6 * be);
         }
     }
+    // `value` keeps no PV in memory and reads them back from book.parquet for the capital
+    // figures; they equal the in-memory computation (a sorted copy, type 7) bit for bit.
+    let be = summary["best_estimate"].as_f64().unwrap();
+    for (key, values) in [("trend", &trend), ("trend_idiosyncratic", &simulated)] {
+        let in_memory = tailspan::risk::CapitalSummary::new(values, be, &[0.9, 0.995]);
+        // Both sides go through the same text and parser (serde_json's default parser may
+        // round the last bit; equal shortest texts parse equal).
+        let text = serde_json::to_string(&in_memory).unwrap();
+        let in_memory: serde_json::Value = serde_json::from_str(&text).unwrap();
+        assert_eq!(summary[key], in_memory, "{key}");
+    }
+    assert_eq!(summary["run"]["scenarios"].as_u64(), Some(60));
     // The standard-formula stress raises the best estimate (a 20 % lower q).
     let stress = &summary["standard_stress"];
     assert!(stress["stressed_pv"].as_f64().unwrap() > summary["best_estimate"].as_f64().unwrap());
