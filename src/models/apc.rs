@@ -17,15 +17,15 @@
 
 use nalgebra::DMatrix;
 
+use crate::data::Population;
 use crate::data::config::CohortSeriesKind;
-use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
 use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family};
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
-use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 use crate::projection::CohortSeries;
 
 const NAME: &str = "apc";
@@ -56,9 +56,7 @@ pub struct Apc {
 /// A fitted age–period–cohort model for one population.
 #[derive(Debug, Clone)]
 pub struct ApcFit {
-    sex: Sex,
-    ages: Span,
-    years: Span,
+    basis: FitBasis,
     /// Age pattern a_x.
     pub ax: Vec<f64>,
     /// Period index k_t as a 1 × years matrix, Σ k_t = 0.
@@ -70,9 +68,6 @@ pub struct ApcFit {
     /// γ_{T−x} by fitted age in the last fitted year T, held by [`FittedModel::rates`];
     /// kept so that `rates` allocates nothing.
     last_year_gamma: Vec<f64>,
-    closure: KannistoClosure,
-    diagnostics: FitDiagnostics,
-    residuals: DMatrix<f64>,
 }
 
 /// Checks the settings every cohort model shares; `name` is the model's.
@@ -220,20 +215,20 @@ impl Apc {
             series,
         };
         let mut fit = ApcFit {
-            sex,
-            ages,
-            years,
             ax,
             kt,
             grid,
             last_year_gamma: cohorts.by_age(years.last, ages.first),
             cohorts,
-            closure: KannistoClosure {
-                fit_ages: p.closure_fit_ages,
-                max_age: p.max_age,
-            },
-            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
-            residuals: DMatrix::zeros(0, 0),
+            basis: FitBasis::unmeasured(
+                sex,
+                ages,
+                years,
+                KannistoClosure {
+                    fit_ages: p.closure_fit_ages,
+                    max_age: p.max_age,
+                },
+            ),
         };
         fit.measure(population, iterations)?;
         Ok(fit)
@@ -253,7 +248,7 @@ impl ApcFit {
     }
 
     fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
-        let (na, nt) = (self.ages.len(), self.years.len());
+        let (na, nt) = (self.basis.ages.len(), self.basis.years.len());
         let mut residuals = DMatrix::from_element(na, nt, f64::NAN);
         let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
         for j in 0..nt {
@@ -273,12 +268,12 @@ impl ApcFit {
         if !(ll.is_finite() && dev.is_finite()) {
             return Err(Error::Numerical(format!(
                 "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.sex
+                self.basis.sex
             )));
         }
         let count = na + (nt - 1) + (self.grid.estimated - 2);
-        self.diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
-        self.residuals = residuals;
+        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        self.basis.record(diagnostics, residuals);
         Ok(())
     }
 }
@@ -292,16 +287,8 @@ impl FittedModel for ApcFit {
         "poisson"
     }
 
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-
-    fn ages(&self) -> Span {
-        self.ages
-    }
-
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
 
     fn factor_names(&self) -> &'static [&'static str] {
@@ -324,23 +311,11 @@ impl FittedModel for ApcFit {
         for ((m, a), g) in out[..n].iter_mut().zip(&self.ax).zip(gamma_by_age) {
             *m = (a + k + g).exp();
         }
-        self.closure.close(self.ages.first, n, out);
+        self.basis.closure.close(self.basis.ages.first, n, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {
         Some(self.cohorts.clone())
-    }
-
-    fn max_age(&self) -> i32 {
-        self.closure.max_age
-    }
-
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diagnostics
-    }
-
-    fn residuals(&self) -> DMatrix<f64> {
-        self.residuals.clone()
     }
 
     fn parameters_json(&self) -> serde_json::Value {

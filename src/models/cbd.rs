@@ -10,12 +10,12 @@
 
 use nalgebra::DMatrix;
 
-use crate::data::{Population, Sex, Span};
+use crate::data::Population;
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
 use crate::models::likelihood::{binomial_deviance, binomial_log_likelihood, deviance_residual};
-use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 
 const NAME: &str = "cbd";
 
@@ -41,16 +41,11 @@ pub struct Cbd {
 /// A fitted CBD model for one population.
 #[derive(Debug, Clone)]
 pub struct CbdFit {
-    sex: Sex,
-    ages: Span,
-    years: Span,
+    basis: FitBasis,
     /// Mean fitted age x̄.
     pub xbar: f64,
     /// Period indices: row 0 is k1_t, row 1 is k2_t.
     pub factors: DMatrix<f64>,
-    closure: KannistoClosure,
-    diagnostics: FitDiagnostics,
-    residuals: DMatrix<f64>,
 }
 
 impl CbdParams {
@@ -115,17 +110,17 @@ impl Cbd {
             most = most.max(iterations);
         }
         let mut fit = CbdFit {
-            sex,
-            ages,
-            years,
             xbar,
             factors,
-            closure: KannistoClosure {
-                fit_ages: p.closure_fit_ages,
-                max_age: p.max_age,
-            },
-            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
-            residuals: DMatrix::zeros(0, 0),
+            basis: FitBasis::unmeasured(
+                sex,
+                ages,
+                years,
+                KannistoClosure {
+                    fit_ages: p.closure_fit_ages,
+                    max_age: p.max_age,
+                },
+            ),
         };
         fit.measure(population, &initial, most)?;
         Ok(fit)
@@ -261,7 +256,7 @@ fn softplus(eta: f64) -> f64 {
 impl CbdFit {
     /// Fitted one-year rate q(x, t) at row `i` (age) and column `j` (year).
     pub fn death_rate(&self, i: usize, j: usize) -> f64 {
-        let z = f64::from(self.ages.first) + i as f64 - self.xbar;
+        let z = f64::from(self.basis.ages.first) + i as f64 - self.xbar;
         logistic(self.factors[(0, j)] + z * self.factors[(1, j)])
     }
 
@@ -271,7 +266,7 @@ impl CbdFit {
         initial: &DMatrix<f64>,
         iterations: usize,
     ) -> Result<()> {
-        let (n_ages, n_years) = (self.ages.len(), self.years.len());
+        let (n_ages, n_years) = (self.basis.ages.len(), self.basis.years.len());
         let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
         let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
         for j in 0..n_years {
@@ -291,11 +286,11 @@ impl CbdFit {
         if !(ll.is_finite() && dev.is_finite()) {
             return Err(Error::Numerical(format!(
                 "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.sex
+                self.basis.sex
             )));
         }
-        self.diagnostics = FitDiagnostics::new(ll, dev, 2 * n_years, cells, iterations);
-        self.residuals = residuals;
+        let diagnostics = FitDiagnostics::new(ll, dev, 2 * n_years, cells, iterations);
+        self.basis.record(diagnostics, residuals);
         Ok(())
     }
 }
@@ -309,16 +304,8 @@ impl FittedModel for CbdFit {
         "binomial"
     }
 
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-
-    fn ages(&self) -> Span {
-        self.ages
-    }
-
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
 
     fn factor_names(&self) -> &'static [&'static str] {
@@ -331,24 +318,12 @@ impl FittedModel for CbdFit {
 
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
         let (k1, k2) = (factors[0], factors[1]);
-        let n = self.ages.len();
-        let first = f64::from(self.ages.first) - self.xbar;
+        let n = self.basis.ages.len();
+        let first = f64::from(self.basis.ages.first) - self.xbar;
         for (i, m) in out[..n].iter_mut().enumerate() {
             *m = softplus(k1 + (first + i as f64) * k2);
         }
-        self.closure.close(self.ages.first, n, out);
-    }
-
-    fn max_age(&self) -> i32 {
-        self.closure.max_age
-    }
-
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diagnostics
-    }
-
-    fn residuals(&self) -> DMatrix<f64> {
-        self.residuals.clone()
+        self.basis.closure.close(self.basis.ages.first, n, out);
     }
 
     fn parameters_json(&self) -> serde_json::Value {

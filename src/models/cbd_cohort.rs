@@ -17,15 +17,15 @@
 
 use nalgebra::DMatrix;
 
+use crate::data::Population;
 use crate::data::config::CohortSeriesKind;
-use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::apc::{check_common, check_window};
 use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family, logistic, softplus};
 use crate::models::likelihood::{binomial_deviance, binomial_log_likelihood, deviance_residual};
-use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 
 /// Which of the two cohort extensions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -83,9 +83,7 @@ pub struct CbdCohort {
 #[derive(Debug, Clone)]
 pub struct CbdCohortFit {
     variant: CbdCohortVariant,
-    sex: Sex,
-    ages: Span,
-    years: Span,
+    basis: FitBasis,
     /// Mean fitted age x̄.
     pub xbar: f64,
     /// Mean of (x − x̄)² over the fitted ages (used by M7).
@@ -99,9 +97,6 @@ pub struct CbdCohortFit {
     /// γ_{T−x} by fitted age in the last fitted year T, held by [`FittedModel::rates`];
     /// kept so that `rates` allocates nothing.
     last_year_gamma: Vec<f64>,
-    closure: KannistoClosure,
-    diagnostics: FitDiagnostics,
-    residuals: DMatrix<f64>,
 }
 
 impl CbdCohortParams {
@@ -222,21 +217,21 @@ impl CbdCohort {
         };
         let mut fit = CbdCohortFit {
             variant: p.variant,
-            sex,
-            ages,
-            years,
             xbar,
             sigma2,
             factors,
             grid,
             last_year_gamma: cohorts.by_age(years.last, ages.first),
             cohorts,
-            closure: KannistoClosure {
-                fit_ages: p.closure_fit_ages,
-                max_age: p.max_age,
-            },
-            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
-            residuals: DMatrix::zeros(0, 0),
+            basis: FitBasis::unmeasured(
+                sex,
+                ages,
+                years,
+                KannistoClosure {
+                    fit_ages: p.closure_fit_ages,
+                    max_age: p.max_age,
+                },
+            ),
         };
         fit.measure(population, &initial, iterations)?;
         Ok(fit)
@@ -251,7 +246,7 @@ impl CbdCohortFit {
 
     /// Linear predictor logit q at age row `i` for period indices `k` and cohort effect `g`.
     fn eta(&self, i: usize, k: &[f64], g: f64) -> f64 {
-        let z = f64::from(self.ages.first) + i as f64 - self.xbar;
+        let z = f64::from(self.basis.ages.first) + i as f64 - self.xbar;
         let mut eta = k[0] + z * k[1] + g;
         if k.len() > 2 {
             eta += k[2] * (z * z - self.sigma2);
@@ -272,7 +267,7 @@ impl CbdCohortFit {
         initial: &DMatrix<f64>,
         iterations: usize,
     ) -> Result<()> {
-        let (na, nt) = (self.ages.len(), self.years.len());
+        let (na, nt) = (self.basis.ages.len(), self.basis.years.len());
         let mut residuals = DMatrix::from_element(na, nt, f64::NAN);
         let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
         for j in 0..nt {
@@ -293,13 +288,13 @@ impl CbdCohortFit {
             return Err(Error::Numerical(format!(
                 "{}, sex {}: the fitted rates give a non-finite log-likelihood",
                 self.variant.name(),
-                self.sex
+                self.basis.sex
             )));
         }
         let nk = self.variant.indices();
         let count = nk * nt + self.grid.estimated - nk;
-        self.diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
-        self.residuals = residuals;
+        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        self.basis.record(diagnostics, residuals);
         Ok(())
     }
 }
@@ -313,16 +308,8 @@ impl FittedModel for CbdCohortFit {
         "binomial"
     }
 
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-
-    fn ages(&self) -> Span {
-        self.ages
-    }
-
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
 
     fn factor_names(&self) -> &'static [&'static str] {
@@ -343,28 +330,16 @@ impl FittedModel for CbdCohortFit {
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
-        let n = self.ages.len();
+        let n = self.basis.ages.len();
         for (i, m) in out[..n].iter_mut().enumerate() {
             // softplus(η) = −ln(1 − q): the central rate the closure expects.
             *m = softplus(self.eta(i, factors, gamma_by_age[i]));
         }
-        self.closure.close(self.ages.first, n, out);
+        self.basis.closure.close(self.basis.ages.first, n, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {
         Some(self.cohorts.clone())
-    }
-
-    fn max_age(&self) -> i32 {
-        self.closure.max_age
-    }
-
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diagnostics
-    }
-
-    fn residuals(&self) -> DMatrix<f64> {
-        self.residuals.clone()
     }
 
     fn parameters_json(&self) -> serde_json::Value {

@@ -10,12 +10,12 @@
 
 use nalgebra::{DMatrix, DVector};
 
-use crate::data::{Population, Sex, Span};
+use crate::data::Population;
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
-use crate::models::{FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 
 const NAME: &str = "lee-carter";
 
@@ -67,9 +67,7 @@ pub struct LeeCarter {
 /// A fitted Lee–Carter model for one population.
 #[derive(Debug, Clone)]
 pub struct LeeCarterFit {
-    sex: Sex,
-    ages: Span,
-    years: Span,
+    basis: FitBasis,
     method: LeeCarterMethod,
     /// Age pattern a_x (mean log rate).
     pub ax: DVector<f64>,
@@ -77,9 +75,6 @@ pub struct LeeCarterFit {
     pub bx: DVector<f64>,
     /// Period index k_t as a 1 × years matrix, Σ k_t = 0.
     pub kt: DMatrix<f64>,
-    closure: KannistoClosure,
-    diagnostics: FitDiagnostics,
-    residuals: DMatrix<f64>,
 }
 
 impl LeeCarterParams {
@@ -166,19 +161,19 @@ impl LeeCarter {
             }
         };
         let mut fit = LeeCarterFit {
-            sex: population.sex,
-            ages,
-            years: population.years,
             method: p.method,
             ax,
             bx,
             kt: DMatrix::from_row_slice(1, kt.len(), kt.as_slice()),
-            closure: KannistoClosure {
-                fit_ages: p.closure_fit_ages,
-                max_age: p.max_age,
-            },
-            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
-            residuals: DMatrix::zeros(0, 0),
+            basis: FitBasis::unmeasured(
+                population.sex,
+                ages,
+                population.years,
+                KannistoClosure {
+                    fit_ages: p.closure_fit_ages,
+                    max_age: p.max_age,
+                },
+            ),
         };
         fit.measure(population, iterations)?;
         Ok(fit)
@@ -198,7 +193,7 @@ impl LeeCarterFit {
 
     /// Log-likelihood, deviance and residuals against the data.
     fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
-        let (n_ages, n_years) = (self.ages.len(), self.years.len());
+        let (n_ages, n_years) = (self.basis.ages.len(), self.basis.years.len());
         let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
         let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
         for j in 0..n_years {
@@ -218,12 +213,12 @@ impl LeeCarterFit {
         if !(ll.is_finite() && dev.is_finite()) {
             return Err(Error::Numerical(format!(
                 "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.sex
+                self.basis.sex
             )));
         }
         let count = 2 * n_ages + n_years - 2;
-        self.diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
-        self.residuals = residuals;
+        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        self.basis.record(diagnostics, residuals);
         Ok(())
     }
 }
@@ -237,16 +232,8 @@ impl FittedModel for LeeCarterFit {
         self.method.name()
     }
 
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-
-    fn ages(&self) -> Span {
-        self.ages
-    }
-
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
 
     fn factor_names(&self) -> &'static [&'static str] {
@@ -263,19 +250,7 @@ impl FittedModel for LeeCarterFit {
         for ((m, a), b) in out[..n].iter_mut().zip(self.ax.iter()).zip(self.bx.iter()) {
             *m = (a + b * k).exp();
         }
-        self.closure.close(self.ages.first, n, out);
-    }
-
-    fn max_age(&self) -> i32 {
-        self.closure.max_age
-    }
-
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diagnostics
-    }
-
-    fn residuals(&self) -> DMatrix<f64> {
-        self.residuals.clone()
+        self.basis.closure.close(self.basis.ages.first, n, out);
     }
 
     fn parameters_json(&self) -> serde_json::Value {

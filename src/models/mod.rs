@@ -11,6 +11,7 @@ use serde::Serialize;
 use crate::data::{Population, Sex, Span};
 
 pub mod apc;
+pub mod basis;
 pub mod cbd;
 pub mod cbd_cohort;
 pub mod cohort;
@@ -21,6 +22,7 @@ pub mod renshaw_haberman;
 pub mod select;
 
 pub use apc::{Apc, ApcFit, ApcParams};
+pub use basis::FitBasis;
 pub use cbd::{Cbd, CbdFit, CbdParams};
 pub use cbd_cohort::{CbdCohort, CbdCohortFit, CbdCohortParams, CbdCohortVariant};
 pub use cohort::{CohortEffects, CohortGrid};
@@ -58,14 +60,23 @@ pub trait FittedModel: Send + Sync {
     /// Estimation method as written in files (`svd`, `poisson`, `binomial`).
     fn method(&self) -> &'static str;
 
+    /// The data window, closure and fit quality the fit holds besides its parameters.
+    fn basis(&self) -> &FitBasis;
+
     /// Sex of the population fitted.
-    fn sex(&self) -> Sex;
+    fn sex(&self) -> Sex {
+        self.basis().sex
+    }
 
     /// The population's fitted ages.
-    fn ages(&self) -> Span;
+    fn ages(&self) -> Span {
+        self.basis().ages
+    }
 
     /// The fitted calendar years.
-    fn years(&self) -> Span;
+    fn years(&self) -> Span {
+        self.basis().years
+    }
 
     /// Names of the period indices, e.g. `["k"]` or `["k1", "k2"]`.
     fn factor_names(&self) -> &'static [&'static str];
@@ -79,13 +90,19 @@ pub trait FittedModel: Send + Sync {
     fn rates(&self, factors: &[f64], out: &mut [f64]);
 
     /// Highest age of the rates; q is 1 there.
-    fn max_age(&self) -> i32;
+    fn max_age(&self) -> i32 {
+        self.basis().closure.max_age
+    }
 
     /// Fit quality.
-    fn diagnostics(&self) -> &FitDiagnostics;
+    fn diagnostics(&self) -> &FitDiagnostics {
+        &self.basis().diagnostics
+    }
 
     /// Deviance residuals, ages × years (NaN where the exposure is zero).
-    fn residuals(&self) -> DMatrix<f64>;
+    fn residuals(&self) -> DMatrix<f64> {
+        self.basis().residuals.clone()
+    }
 
     /// Fitted parameters by name, as written to `fit.json`.
     fn parameters_json(&self) -> serde_json::Value;

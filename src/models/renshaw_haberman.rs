@@ -29,8 +29,8 @@
 
 use nalgebra::DMatrix;
 
+use crate::data::Population;
 use crate::data::config::{CohortLoading, CohortSeriesKind};
-use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::apc::{check_common, check_window};
@@ -38,7 +38,7 @@ use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family, Linearised};
 use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
 use crate::models::{
-    FitDiagnostics, FittedModel, LeeCarterMethod, LeeCarterParams, MortalityModel,
+    FitBasis, FitDiagnostics, FittedModel, LeeCarterMethod, LeeCarterParams, MortalityModel,
 };
 
 const NAME: &str = "renshaw-haberman";
@@ -71,9 +71,7 @@ pub struct RenshawHaberman {
 /// A fitted Renshaw–Haberman model for one population.
 #[derive(Debug, Clone)]
 pub struct RenshawHabermanFit {
-    sex: Sex,
-    ages: Span,
-    years: Span,
+    basis: FitBasis,
     loading: CohortLoading,
     /// Age pattern a_x.
     pub ax: Vec<f64>,
@@ -90,9 +88,6 @@ pub struct RenshawHabermanFit {
     /// γ_{T−x} by fitted age in the last fitted year T, held by [`FittedModel::rates`];
     /// kept so that `rates` allocates nothing.
     last_year_gamma: Vec<f64>,
-    closure: KannistoClosure,
-    diagnostics: FitDiagnostics,
-    residuals: DMatrix<f64>,
 }
 
 impl RenshawHabermanParams {
@@ -361,9 +356,6 @@ impl RenshawHaberman {
             series,
         };
         let mut fit = RenshawHabermanFit {
-            sex,
-            ages,
-            years,
             loading: p.loading,
             ax,
             bx,
@@ -372,12 +364,15 @@ impl RenshawHaberman {
             grid,
             last_year_gamma: cohorts.by_age(years.last, ages.first),
             cohorts,
-            closure: KannistoClosure {
-                fit_ages: p.closure_fit_ages,
-                max_age: p.max_age,
-            },
-            diagnostics: FitDiagnostics::new(0.0, 0.0, 0, 0, 0),
-            residuals: DMatrix::zeros(0, 0),
+            basis: FitBasis::unmeasured(
+                sex,
+                ages,
+                years,
+                KannistoClosure {
+                    fit_ages: p.closure_fit_ages,
+                    max_age: p.max_age,
+                },
+            ),
         };
         fit.measure(population, cycles)?;
         Ok(fit)
@@ -534,7 +529,7 @@ impl RenshawHabermanFit {
     }
 
     fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
-        let (na, nt) = (self.ages.len(), self.years.len());
+        let (na, nt) = (self.basis.ages.len(), self.basis.years.len());
         let mut residuals = DMatrix::from_element(na, nt, f64::NAN);
         let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
         for j in 0..nt {
@@ -554,15 +549,15 @@ impl RenshawHabermanFit {
         if !(ll.is_finite() && dev.is_finite()) {
             return Err(Error::Numerical(format!(
                 "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.sex
+                self.basis.sex
             )));
         }
         let mut count = na + (na - 1) + (nt - 1) + (self.grid.estimated - 2);
         if self.loading == CohortLoading::Free {
             count += na - 1;
         }
-        self.diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
-        self.residuals = residuals;
+        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        self.basis.record(diagnostics, residuals);
         Ok(())
     }
 }
@@ -576,16 +571,8 @@ impl FittedModel for RenshawHabermanFit {
         "poisson"
     }
 
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-
-    fn ages(&self) -> Span {
-        self.ages
-    }
-
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
 
     fn factor_names(&self) -> &'static [&'static str] {
@@ -608,23 +595,11 @@ impl FittedModel for RenshawHabermanFit {
         for (i, m) in out[..n].iter_mut().enumerate() {
             *m = (self.ax[i] + self.bx[i] * k + self.b0x[i] * gamma_by_age[i]).exp();
         }
-        self.closure.close(self.ages.first, n, out);
+        self.basis.closure.close(self.basis.ages.first, n, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {
         Some(self.cohorts.clone())
-    }
-
-    fn max_age(&self) -> i32 {
-        self.closure.max_age
-    }
-
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diagnostics
-    }
-
-    fn residuals(&self) -> DMatrix<f64> {
-        self.residuals.clone()
     }
 
     fn parameters_json(&self) -> serde_json::Value {

@@ -35,7 +35,7 @@ use tailspan::projection::{
 };
 
 use projection_support::{
-    AGES, COHORTS, ESTIMATED, FakeLogRate, LEFT_OUT, YEARS, cohort_pair, diagnostics, histories,
+    AGES, COHORTS, ESTIMATED, FakeLogRate, LEFT_OUT, YEARS, basis, cohort_pair, histories,
     invented_gamma,
 };
 
@@ -322,14 +322,10 @@ fn period_paths_are_those_of_a_period_model() {
         .into_iter()
         .map(|(sex, k)| {
             let m: Box<dyn FittedModel> = Box::new(FakeLogRate {
-                sex,
-                ages: AGES,
-                years: YEARS,
-                max_age: 120,
+                basis: basis(sex, AGES, YEARS, 120),
                 ax: vec![-4.0; n],
                 bx: vec![1.0; n],
                 kt: k / n as f64,
-                diag: diagnostics(),
             });
             (sex, m)
         })

@@ -321,12 +321,8 @@ fn rates_leaving_the_unit_interval_stop_the_run_and_leave_no_files() {
             }
         });
         *m = Box::new(projection_support::FakeCbd {
-            sex: *sex,
-            ages: AGES,
-            years: projection_support::YEARS,
-            max_age: 120,
+            basis: projection_support::basis(*sex, AGES, projection_support::YEARS, 120),
             kt: steep,
-            diag: projection_support::diagnostics(),
         });
     }
     let mut p = Projector::new(fits, settings(true, Uncertainty::None, 80), None).unwrap();

@@ -10,32 +10,41 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
 use tailspan::data::config::CohortSeriesKind;
 use tailspan::data::{Population, Sex, Span};
-use tailspan::models::{CohortEffects, FitDiagnostics, FittedModel, MortalityModel};
+use tailspan::life::closure::KannistoClosure;
+use tailspan::models::{CohortEffects, FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 use tailspan::projection::CohortSeries;
 
-pub fn diagnostics() -> FitDiagnostics {
-    FitDiagnostics {
-        log_likelihood: 0.0,
-        deviance: 0.0,
-        parameters: 0,
-        observations: 0,
-        aic: 0.0,
-        bic: 0.0,
-        iterations: 0,
+/// The data window of a fake fit, with zero diagnostics and residuals. The fakes close
+/// their own rates, so the closure only carries `max_age`.
+pub fn basis(sex: Sex, ages: Span, years: Span, max_age: i32) -> FitBasis {
+    FitBasis {
+        sex,
+        ages,
+        years,
+        closure: KannistoClosure {
+            fit_ages: 2,
+            max_age,
+        },
+        diagnostics: FitDiagnostics {
+            log_likelihood: 0.0,
+            deviance: 0.0,
+            parameters: 0,
+            observations: 0,
+            aic: 0.0,
+            bic: 0.0,
+            iterations: 0,
+        },
+        residuals: DMatrix::zeros(ages.len(), years.len()),
     }
 }
 
 /// log m(x, t) = a_x + b_x k_t at the fitted ages; above them log m rises by 0.1 a year
 /// of age from the top fitted age; q = 1 − exp(−m) and q = 1 at `max_age`.
 pub struct FakeLogRate {
-    pub sex: Sex,
-    pub ages: Span,
-    pub years: Span,
-    pub max_age: i32,
+    pub basis: FitBasis,
     pub ax: Vec<f64>,
     pub bx: Vec<f64>,
     pub kt: DMatrix<f64>,
-    pub diag: FitDiagnostics,
 }
 
 impl FittedModel for FakeLogRate {
@@ -45,14 +54,8 @@ impl FittedModel for FakeLogRate {
     fn method(&self) -> &'static str {
         "fixed"
     }
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-    fn ages(&self) -> Span {
-        self.ages
-    }
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
     fn factor_names(&self) -> &'static [&'static str] {
         &["k"]
@@ -61,7 +64,7 @@ impl FittedModel for FakeLogRate {
         &self.kt
     }
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
-        let n = self.ages.len();
+        let n = self.basis.ages.len();
         let top = self.ax[n - 1] + self.bx[n - 1] * factors[0];
         for (i, q) in out.iter_mut().enumerate() {
             let log_m = if i < n {
@@ -73,15 +76,6 @@ impl FittedModel for FakeLogRate {
         }
         *out.last_mut().unwrap() = 1.0;
     }
-    fn max_age(&self) -> i32 {
-        self.max_age
-    }
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diag
-    }
-    fn residuals(&self) -> DMatrix<f64> {
-        DMatrix::zeros(self.ages.len(), self.years.len())
-    }
     fn parameters_json(&self) -> serde_json::Value {
         serde_json::Value::Null
     }
@@ -89,17 +83,13 @@ impl FittedModel for FakeLogRate {
 
 /// logit q(x, t) = k1_t + (x − x̄) k2_t at every age below `max_age`, q = 1 there.
 pub struct FakeCbd {
-    pub sex: Sex,
-    pub ages: Span,
-    pub years: Span,
-    pub max_age: i32,
+    pub basis: FitBasis,
     pub kt: DMatrix<f64>,
-    pub diag: FitDiagnostics,
 }
 
 impl FakeCbd {
     pub fn xbar(&self) -> f64 {
-        0.5 * (self.ages.first + self.ages.last) as f64
+        0.5 * (self.basis.ages.first + self.basis.ages.last) as f64
     }
 }
 
@@ -110,14 +100,8 @@ impl FittedModel for FakeCbd {
     fn method(&self) -> &'static str {
         "fixed"
     }
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-    fn ages(&self) -> Span {
-        self.ages
-    }
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
     fn factor_names(&self) -> &'static [&'static str] {
         &["k1", "k2"]
@@ -128,20 +112,11 @@ impl FittedModel for FakeCbd {
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
         let xbar = self.xbar();
         for (i, q) in out.iter_mut().enumerate() {
-            let x = (self.ages.first + i as i32) as f64;
+            let x = (self.basis.ages.first + i as i32) as f64;
             let eta = factors[0] + (x - xbar) * factors[1];
             *q = 1.0 / (1.0 + (-eta).exp());
         }
         *out.last_mut().unwrap() = 1.0;
-    }
-    fn max_age(&self) -> i32 {
-        self.max_age
-    }
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diag
-    }
-    fn residuals(&self) -> DMatrix<f64> {
-        DMatrix::zeros(self.ages.len(), self.years.len())
     }
     fn parameters_json(&self) -> serde_json::Value {
         serde_json::Value::Null
@@ -195,14 +170,10 @@ pub fn log_rate_pair(max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
     let n = AGES.len();
     let make = |sex: Sex, k: DMatrix<f64>, shift: f64| -> Box<dyn FittedModel> {
         Box::new(FakeLogRate {
-            sex,
-            ages: AGES,
-            years: YEARS,
-            max_age,
+            basis: basis(sex, AGES, YEARS, max_age),
             ax: (0..n).map(|i| -5.0 + shift + 0.09 * i as f64).collect(),
             bx: vec![1.0 / n as f64; n],
             kt: k,
-            diag: diagnostics(),
         })
     };
     vec![
@@ -223,12 +194,8 @@ pub fn cbd_pair(ages: Span, max_age: i32) -> Vec<(Sex, Box<dyn FittedModel>)> {
     );
     let make = |sex: Sex, k: DMatrix<f64>| -> Box<dyn FittedModel> {
         Box::new(FakeCbd {
-            sex,
-            ages,
-            years: YEARS,
-            max_age,
+            basis: basis(sex, ages, YEARS, max_age),
             kt: k,
-            diag: diagnostics(),
         })
     };
     vec![(Sex::F, make(Sex::F, kf)), (Sex::M, make(Sex::M, km))]
@@ -259,12 +226,8 @@ impl MortalityModel for FakeCbdSpec {
             kt[(1, t)] = sxy / sxx;
         }
         Ok(Box::new(FakeCbd {
-            sex: population.sex,
-            ages,
-            years: population.years,
-            max_age: self.max_age,
+            basis: basis(population.sex, ages, population.years, self.max_age),
             kt,
-            diag: diagnostics(),
         }))
     }
 }
@@ -295,15 +258,11 @@ pub fn experience_of(model: &dyn FittedModel, sex: Sex, exposure: f64) -> Popula
 /// log m(x, t) = a_x + k_t + γ_{t−x} at the fitted ages; above them log m rises by 0.1 a
 /// year of age from the top fitted age; q = 1 − exp(−m) and q = 1 at `max_age`.
 pub struct FakeCohort {
-    pub sex: Sex,
-    pub ages: Span,
-    pub years: Span,
-    pub max_age: i32,
+    pub basis: FitBasis,
     pub ax: Vec<f64>,
     pub kt: DMatrix<f64>,
     pub effects: CohortEffects,
     pub frozen: Vec<f64>,
-    pub diag: FitDiagnostics,
 }
 
 impl FittedModel for FakeCohort {
@@ -313,14 +272,8 @@ impl FittedModel for FakeCohort {
     fn method(&self) -> &'static str {
         "fixed"
     }
-    fn sex(&self) -> Sex {
-        self.sex
-    }
-    fn ages(&self) -> Span {
-        self.ages
-    }
-    fn years(&self) -> Span {
-        self.years
+    fn basis(&self) -> &FitBasis {
+        &self.basis
     }
     fn factor_names(&self) -> &'static [&'static str] {
         &["k"]
@@ -332,7 +285,7 @@ impl FittedModel for FakeCohort {
         self.cohort_rates(factors, &self.frozen, out);
     }
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
-        let n = self.ages.len();
+        let n = self.basis.ages.len();
         let top = self.ax[n - 1] + factors[0] + gamma_by_age[n - 1];
         for (i, q) in out.iter_mut().enumerate() {
             let log_m = if i < n {
@@ -346,15 +299,6 @@ impl FittedModel for FakeCohort {
     }
     fn cohort_effects(&self) -> Option<CohortEffects> {
         Some(self.effects.clone())
-    }
-    fn max_age(&self) -> i32 {
-        self.max_age
-    }
-    fn diagnostics(&self) -> &FitDiagnostics {
-        &self.diag
-    }
-    fn residuals(&self) -> DMatrix<f64> {
-        DMatrix::zeros(self.ages.len(), self.years.len())
     }
     fn parameters_json(&self) -> serde_json::Value {
         serde_json::Value::Null
@@ -412,15 +356,11 @@ pub fn cohort_pair(kind: CohortSeriesKind) -> Vec<(Sex, Box<dyn FittedModel>)> {
             series,
         };
         Box::new(FakeCohort {
-            sex,
-            ages: AGES,
-            years: YEARS,
-            max_age: 120,
+            basis: basis(sex, AGES, YEARS, 120),
             ax: (0..n).map(|i| -5.0 + shift + 0.09 * i as f64).collect(),
             kt: k / n as f64,
             frozen: effects.by_age(YEARS.last, AGES.first),
             effects,
-            diag: diagnostics(),
         })
     };
     vec![
