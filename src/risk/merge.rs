@@ -361,9 +361,14 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
     for &stem in &parts.stems {
         let file = if stem == "book" {
             let path = parts.part("book", 1);
-            let mut file = concat_parts(&parts, stem, &blocks, compression, &provenance, &mut |batch| {
-                collect_book(&mut outcome, batch, &path)
-            })?;
+            let mut file = concat_parts(
+                &parts,
+                stem,
+                &blocks,
+                compression,
+                &provenance,
+                &mut |batch| collect_book(&mut outcome, batch, &path),
+            )?;
             outcome.book = Some(WrittenBook::reopen(&mut file)?);
             file
         } else {
