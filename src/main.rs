@@ -6,8 +6,6 @@ use std::process::ExitCode;
 use clap::Parser;
 
 fn main() -> ExitCode {
-    // Long runs free large buffers over and over; see `io::memory` for what was measured.
-    tailspan::io::memory::return_large_frees();
     let cli = tailspan::cli::Cli::parse();
     match tailspan::cli::run(cli) {
         Ok(()) => ExitCode::SUCCESS,

@@ -24,6 +24,8 @@ pub struct MergeArgs {
 /// `book.parquet`, `cashflows.parquet`, `lifetimes.parquet` (and `paths`, `factors`,
 /// `period` when projection parts are there) and the run's `summary.json` into DIR.
 pub fn run(args: &MergeArgs) -> Result<()> {
+    // Merging a long run frees large buffers over and over; see `io::memory`.
+    crate::io::memory::return_large_frees();
     let config = Config::load(&args.config)?;
     let dir = args.dir.clone().unwrap_or_else(|| config.output_folder());
     let merged = merge_folder(&dir, &config)?;

@@ -28,6 +28,8 @@ pub struct ValueArgs {
 /// Runs `tailspan value`: fits, projects in memory, values the book in every scenario and
 /// writes `book.parquet`, `cashflows.parquet`, `lifetimes.parquet` and `summary.json`.
 pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
+    // A long valuation frees large buffers over and over; see `io::memory`.
+    crate::io::memory::return_large_frees();
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     let config = Config::load(&args.config)?;
     let provenance = crate::pipeline::provenance(&config)?;
