@@ -24,8 +24,8 @@ use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
 use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family};
-use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
-use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::likelihood::measure_fit;
+use crate::models::{FitBasis, FittedModel, MortalityModel};
 use crate::projection::CohortSeries;
 
 const NAME: &str = "apc";
@@ -249,30 +249,17 @@ impl ApcFit {
 
     fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
         let (na, nt) = (self.basis.ages.len(), self.basis.years.len());
-        let mut residuals = DMatrix::from_element(na, nt, f64::NAN);
-        let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
-        for j in 0..nt {
-            for i in 0..na {
-                let (d, e) = (population.deaths[(i, j)], population.exposure[(i, j)]);
-                if e <= 0.0 || !self.grid.used(i, j) {
-                    continue;
-                }
-                let mean = e * self.central_rate(i, j);
-                let unit = poisson_deviance(d, mean);
-                ll += poisson_log_likelihood(d, mean);
-                dev += unit;
-                residuals[(i, j)] = deviance_residual(d, mean, unit);
-                cells += 1;
-            }
-        }
-        if !(ll.is_finite() && dev.is_finite()) {
-            return Err(Error::Numerical(format!(
-                "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.basis.sex
-            )));
-        }
         let count = na + (nt - 1) + (self.grid.estimated - 2);
-        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        let (diagnostics, residuals) = measure_fit(
+            NAME,
+            self.basis.sex,
+            Family::Poisson,
+            &population.deaths,
+            &population.exposure,
+            count,
+            iterations,
+            |i, j| self.grid.used(i, j).then(|| self.central_rate(i, j)),
+        )?;
         self.basis.record(diagnostics, residuals);
         Ok(())
     }

@@ -14,8 +14,9 @@ use crate::data::Population;
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
-use crate::models::likelihood::{binomial_deviance, binomial_log_likelihood, deviance_residual};
-use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::glm::Family;
+use crate::models::likelihood::measure_fit;
+use crate::models::{FitBasis, FittedModel, MortalityModel};
 
 const NAME: &str = "cbd";
 
@@ -266,30 +267,17 @@ impl CbdFit {
         initial: &DMatrix<f64>,
         iterations: usize,
     ) -> Result<()> {
-        let (n_ages, n_years) = (self.basis.ages.len(), self.basis.years.len());
-        let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
-        let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
-        for j in 0..n_years {
-            for i in 0..n_ages {
-                let (d, n) = (population.deaths[(i, j)], initial[(i, j)]);
-                if n <= 0.0 {
-                    continue;
-                }
-                let q = self.death_rate(i, j);
-                let unit = binomial_deviance(d, n, q);
-                ll += binomial_log_likelihood(d, n, q);
-                dev += unit;
-                residuals[(i, j)] = deviance_residual(d, n * q, unit);
-                cells += 1;
-            }
-        }
-        if !(ll.is_finite() && dev.is_finite()) {
-            return Err(Error::Numerical(format!(
-                "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.basis.sex
-            )));
-        }
-        let diagnostics = FitDiagnostics::new(ll, dev, 2 * n_years, cells, iterations);
+        let n_years = self.basis.years.len();
+        let (diagnostics, residuals) = measure_fit(
+            NAME,
+            self.basis.sex,
+            Family::Binomial,
+            &population.deaths,
+            initial,
+            2 * n_years,
+            iterations,
+            |i, j| Some(self.death_rate(i, j)),
+        )?;
         self.basis.record(diagnostics, residuals);
         Ok(())
     }

@@ -24,8 +24,8 @@ use crate::life::closure::KannistoClosure;
 use crate::models::apc::{check_common, check_window};
 use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family, logistic, softplus};
-use crate::models::likelihood::{binomial_deviance, binomial_log_likelihood, deviance_residual};
-use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::likelihood::measure_fit;
+use crate::models::{FitBasis, FittedModel, MortalityModel};
 
 /// Which of the two cohort extensions.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -267,33 +267,19 @@ impl CbdCohortFit {
         initial: &DMatrix<f64>,
         iterations: usize,
     ) -> Result<()> {
-        let (na, nt) = (self.basis.ages.len(), self.basis.years.len());
-        let mut residuals = DMatrix::from_element(na, nt, f64::NAN);
-        let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
-        for j in 0..nt {
-            for i in 0..na {
-                let (d, n) = (population.deaths[(i, j)], initial[(i, j)]);
-                if n <= 0.0 || !self.grid.used(i, j) {
-                    continue;
-                }
-                let q = self.death_rate(i, j);
-                let unit = binomial_deviance(d, n, q);
-                ll += binomial_log_likelihood(d, n, q);
-                dev += unit;
-                residuals[(i, j)] = deviance_residual(d, n * q, unit);
-                cells += 1;
-            }
-        }
-        if !(ll.is_finite() && dev.is_finite()) {
-            return Err(Error::Numerical(format!(
-                "{}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.variant.name(),
-                self.basis.sex
-            )));
-        }
+        let nt = self.basis.years.len();
         let nk = self.variant.indices();
         let count = nk * nt + self.grid.estimated - nk;
-        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        let (diagnostics, residuals) = measure_fit(
+            self.variant.name(),
+            self.basis.sex,
+            Family::Binomial,
+            &population.deaths,
+            initial,
+            count,
+            iterations,
+            |i, j| self.grid.used(i, j).then(|| self.death_rate(i, j)),
+        )?;
         self.basis.record(diagnostics, residuals);
         Ok(())
     }

@@ -14,8 +14,9 @@ use crate::data::Population;
 use crate::error::{Error, Result};
 use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
-use crate::models::likelihood::{deviance_residual, poisson_deviance, poisson_log_likelihood};
-use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
+use crate::models::glm::Family;
+use crate::models::likelihood::measure_fit;
+use crate::models::{FitBasis, FittedModel, MortalityModel};
 
 const NAME: &str = "lee-carter";
 
@@ -194,30 +195,17 @@ impl LeeCarterFit {
     /// Log-likelihood, deviance and residuals against the data.
     fn measure(&mut self, population: &Population, iterations: usize) -> Result<()> {
         let (n_ages, n_years) = (self.basis.ages.len(), self.basis.years.len());
-        let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
-        let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
-        for j in 0..n_years {
-            for i in 0..n_ages {
-                let (d, e) = (population.deaths[(i, j)], population.exposure[(i, j)]);
-                if e <= 0.0 {
-                    continue;
-                }
-                let mean = e * self.central_rate(i, j);
-                let unit = poisson_deviance(d, mean);
-                ll += poisson_log_likelihood(d, mean);
-                dev += unit;
-                residuals[(i, j)] = deviance_residual(d, mean, unit);
-                cells += 1;
-            }
-        }
-        if !(ll.is_finite() && dev.is_finite()) {
-            return Err(Error::Numerical(format!(
-                "{NAME}, sex {}: the fitted rates give a non-finite log-likelihood",
-                self.basis.sex
-            )));
-        }
         let count = 2 * n_ages + n_years - 2;
-        let diagnostics = FitDiagnostics::new(ll, dev, count, cells, iterations);
+        let (diagnostics, residuals) = measure_fit(
+            NAME,
+            self.basis.sex,
+            Family::Poisson,
+            &population.deaths,
+            &population.exposure,
+            count,
+            iterations,
+            |i, j| Some(self.central_rate(i, j)),
+        )?;
         self.basis.record(diagnostics, residuals);
         Ok(())
     }

@@ -6,8 +6,12 @@
 //! Cells with zero exposure carry no information and are skipped everywhere (weight 0).
 
 use libm::lgamma;
+use nalgebra::DMatrix;
 
+use crate::data::Sex;
+use crate::error::{Error, Result};
 use crate::models::FitDiagnostics;
+use crate::models::glm::Family;
 
 /// `x ln(x / y)` with the convention 0 ln 0 = 0.
 fn xlogx_over(x: f64, y: f64) -> f64 {
@@ -48,6 +52,64 @@ pub fn binomial_deviance(d: f64, n: f64, q: f64) -> f64 {
 pub fn deviance_residual(d: f64, fitted: f64, unit_deviance: f64) -> f64 {
     let r = unit_deviance.max(0.0).sqrt();
     if d < fitted { -r } else { r }
+}
+
+/// Measures a fit over an ages × years grid: the diagnostics (with `parameters` free
+/// parameters) and the deviance residuals (NaN where a cell is skipped). `size` is the
+/// exposure (Poisson) or initial exposure (binomial); cells with `size ≤ 0` are skipped,
+/// as are those for which `fitted(i, j)` gives `None`. Sums run year by year, age within
+/// year. A non-finite log-likelihood or deviance is an error naming `model` and `sex`.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn measure_fit(
+    model: &str,
+    sex: Sex,
+    family: Family,
+    deaths: &DMatrix<f64>,
+    size: &DMatrix<f64>,
+    parameters: usize,
+    iterations: usize,
+    fitted: impl Fn(usize, usize) -> Option<f64>,
+) -> Result<(FitDiagnostics, DMatrix<f64>)> {
+    let (n_ages, n_years) = deaths.shape();
+    let mut residuals = DMatrix::from_element(n_ages, n_years, f64::NAN);
+    let (mut ll, mut dev, mut cells) = (0.0, 0.0, 0usize);
+    for j in 0..n_years {
+        for i in 0..n_ages {
+            let (d, n) = (deaths[(i, j)], size[(i, j)]);
+            if n <= 0.0 {
+                continue;
+            }
+            let Some(rate) = fitted(i, j) else { continue };
+            let (unit, cell_ll, expected) = match family {
+                Family::Poisson => {
+                    let mean = n * rate;
+                    (
+                        poisson_deviance(d, mean),
+                        poisson_log_likelihood(d, mean),
+                        mean,
+                    )
+                }
+                Family::Binomial => (
+                    binomial_deviance(d, n, rate),
+                    binomial_log_likelihood(d, n, rate),
+                    n * rate,
+                ),
+            };
+            ll += cell_ll;
+            dev += unit;
+            residuals[(i, j)] = deviance_residual(d, expected, unit);
+            cells += 1;
+        }
+    }
+    if !(ll.is_finite() && dev.is_finite()) {
+        return Err(Error::Numerical(format!(
+            "{model}, sex {sex}: the fitted rates give a non-finite log-likelihood"
+        )));
+    }
+    Ok((
+        FitDiagnostics::new(ll, dev, parameters, cells, iterations),
+        residuals,
+    ))
 }
 
 impl FitDiagnostics {
