@@ -57,6 +57,15 @@ impl AtomicFile {
         &self.target
     }
 
+    /// The folder the file is written in.
+    pub fn folder(&self) -> &Path {
+        self.temp
+            .get_ref()
+            .path()
+            .parent()
+            .unwrap_or_else(|| Path::new("."))
+    }
+
     /// Flushes what is written so far and opens the temporary file again for reading,
     /// so an output can be read back before it is committed.
     pub fn reopen(&mut self) -> Result<fs::File> {

@@ -7,6 +7,7 @@ pub mod memory;
 pub mod parquet;
 pub mod provenance;
 pub mod report;
+pub mod spill;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};
 pub use parquet::ParquetSink;

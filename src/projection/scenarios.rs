@@ -346,9 +346,15 @@ impl Projector {
             let mut rng = stream(s.seed, scenario, Purpose::Innovations);
             let mut k = last.clone();
             let mut z = DVector::zeros(dims);
+            // `l * z` into a buffer kept across years: the same product as the operator,
+            // without two heap allocations a projected year.
+            let mut shock = DVector::zeros(dims);
             for h in 1..=s.horizon {
                 z.iter_mut().for_each(|v| *v = rng.sample(StandardNormal));
-                k += &drift + l * &z;
+                l.mul_to(&z, &mut shock);
+                for i in 0..dims {
+                    k[i] += drift[i] + shock[i];
+                }
                 out.factors[(h - 1) * dims..h * dims].copy_from_slice(k.as_slice());
             }
         }

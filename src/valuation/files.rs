@@ -38,18 +38,17 @@ const LIFETIMES_DESCRIPTION: &str = "scenario: scenario number; sex: F or M; age
     e_complete: E[min(T, n)]; e_curtate: E[min(K, n)]; annuity: n-year temporary annuity \
     on the valuation basis";
 
-/// Rows per row group of the valuation files. The writer holds a whole row group in memory
-/// before it flushes, so this bounds memory whatever the scenario count: 2^17 rows of
-/// `lifetimes` (about 1,700 scenarios of the 1,000-policy bench book) are a few MB
-/// encoded, and a million-scenario run keeps the buffers of a ten-thousand-scenario one;
-/// groups this size still compress and scan well.
-pub const ROWS_PER_GROUP: usize = 1 << 17;
+/// Rows per row group of `cashflows` and `lifetimes`: 4,194,304 rows, 90–160 MB before
+/// compression, near the 128 MB row groups parquet-mr writes by default (from memory). The
+/// writer spills finished pages to disk (`io::spill`), so its memory does not depend on
+/// this; what does is the footer, one entry per column chunk kept until the file closes:
+/// a million scenarios of the 1,000-policy bench book make about 35 row groups, not the
+/// 1,100 that 2^17-row groups made.
+pub const ROWS_PER_GROUP: usize = 1 << 22;
 
-/// Rows per row group of `book.parquet`, one row a scenario: at [`ROWS_PER_GROUP`] its
-/// buffer would grow until 131,072 scenarios (2.6 MB), so a run of 10,000 would hold a
-/// tenth of what a run of a million holds; at 2^14 rows (330 KB) the difference is a
-/// few hundred KB.
-pub const BOOK_ROWS_PER_GROUP: usize = 1 << 14;
+/// Rows per row group of `book.parquet`, one row a scenario: a million scenarios fit one
+/// group, and the summary reads it back a batch at a time.
+pub const BOOK_ROWS_PER_GROUP: usize = 1 << 20;
 
 /// Rows per row group of a valuation file (`book`, `cashflows`, `lifetimes`).
 pub fn rows_per_group(stem: &str) -> usize {
