@@ -6,7 +6,7 @@
 //! run's footer (column-chunk metadata the writer keeps until the file closes) grow with
 //! the scenario count. Spilled to an unnamed temporary file beside the output, a finished
 //! page costs one write and one read; row groups can then be as large as readers like,
-//! and memory stays flat from ten thousand to a million scenarios.
+//! and the writers' memory no longer grows with the scenario count.
 //!
 //! The temporaries have no name (`O_TMPFILE` where the filesystem has it, otherwise
 //! unlinked at once), so even a killed process leaves nothing behind.
