@@ -66,7 +66,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
     let request = ValueRequest {
         ids,
         options: &options,
-        keep_values: true,
+        hedges: Some(&hedges),
         report: false,
         extracts: &extracts,
     };

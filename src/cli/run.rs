@@ -113,7 +113,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         let request = ValueRequest {
             ids,
             options: &options,
-            keep_values: config.hedge.is_some(),
+            hedges: config.hedge.as_ref(),
             report: true,
             extracts: &extracts,
         };

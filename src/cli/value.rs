@@ -62,7 +62,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     let request = ValueRequest {
         ids,
         options: &options,
-        keep_values: false,
+        hedges: None,
         report: false,
         extracts: &Extracts::default(),
     };

@@ -6,7 +6,7 @@ use serde::Serialize;
 use crate::data::{DiscountCurve, Sex};
 use crate::error::{Error, Result};
 use crate::hedge::effectiveness::{Effectiveness, effectiveness};
-use crate::hedge::legs::{BookResults, Distribution, LegValues};
+use crate::hedge::legs::{BookSample, Distribution, LegValues};
 use crate::hedge::pricing::{
     CostOfCapitalPrice, PremiumQuote, SharpePrice, cost_of_capital, sharpe,
 };
@@ -22,8 +22,8 @@ pub const HEDGE_COLUMNS: [&str; 5] = ["scenario", "contract", "fixed_leg", "floa
 /// What the hedges are evaluated on.
 #[derive(Debug, Clone, Copy)]
 pub struct HedgeInputs<'a> {
-    /// The book's per-scenario valuation.
-    pub book: BookResults<'a>,
+    /// The book's per-scenario figures.
+    pub book: &'a BookSample,
     /// Discounting of the settlements (the valuation's basis).
     pub curve: &'a DiscountCurve,
     /// Valuation year V: policy year k is calendar year V + k.
@@ -209,7 +209,7 @@ impl HedgeResults {
 
 /// Prices and values every contract of `config` on `inputs`.
 pub fn evaluate(config: &HedgeConfig, inputs: &HedgeInputs<'_>) -> Result<HedgeResults> {
-    let book = &inputs.book;
+    let book = inputs.book;
     book.check()?;
     if inputs.references.len() != config.qforward.len() {
         return Err(Error::Numerical(format!(
@@ -218,17 +218,17 @@ pub fn evaluate(config: &HedgeConfig, inputs: &HedgeInputs<'_>) -> Result<HedgeR
             inputs.references.len()
         )));
     }
-    let pv = book.pv();
+    let pv = &book.pv;
     let idiosyncratic_sd = book.idiosyncratic_sd();
     let mut contracts = Vec::new();
     let mut values = Vec::new();
     for (i, s) in config.swap.iter().enumerate() {
-        let (summary, v) = evaluate_swap(config, s, i, inputs, &pv)?;
+        let (summary, v) = evaluate_swap(config, s, i, inputs, pv)?;
         values.push((summary.name.clone(), v));
         contracts.push(ContractSummary::Swap(summary));
     }
     for (i, (q, reference)) in config.qforward.iter().zip(inputs.references).enumerate() {
-        let (mut summary, v) = evaluate_qforward(q, i, reference, inputs, &pv)?;
+        let (mut summary, v) = evaluate_qforward(q, i, reference, inputs, pv)?;
         summary.unhedgeable_sd = idiosyncratic_sd;
         values.push((summary.name.clone(), v));
         contracts.push(ContractSummary::QForward(summary));
@@ -259,7 +259,7 @@ fn evaluate_swap(
         floating: s.floating,
         side: s.side,
     };
-    let legs = terms.legs(&inputs.book, inputs.curve)?;
+    let legs = terms.legs_of(inputs.book, index, inputs.curve)?;
     let coc = cost_of_capital(&legs, s.share, config.cost_of_capital, config.capital_level);
     let sh = sharpe(&legs, s.share, config.target_sharpe);
     let (applied_basis, applied) = match s.premium {

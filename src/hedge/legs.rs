@@ -9,6 +9,7 @@ use serde::Serialize;
 
 use crate::data::DiscountCurve;
 use crate::error::{Error, Result};
+use crate::hedge::spec::{FloatingBasis, HedgeConfig};
 use crate::risk::capital::REPORTED_QUANTILES;
 use crate::risk::quantile::{quantile_sorted, sorted, summarize};
 use crate::valuation::ScenarioValue;
@@ -23,35 +24,60 @@ pub struct BookResults<'a> {
     pub scenarios: &'a [ScenarioValue],
 }
 
-impl<'a> BookResults<'a> {
-    /// Checks the shapes and values the hedges rely on.
+impl BookResults<'_> {
+    /// Policy years of cash flow.
+    pub fn years(&self) -> usize {
+        self.central.cash_expected.len()
+    }
+
+    /// The figures the hedges of `config` use, discounted on `curve`, checked.
+    pub fn sample(&self, config: &HedgeConfig, curve: &DiscountCurve) -> Result<BookSample> {
+        let sampler = BookSampler::new(config, curve, self.years());
+        let mut sample = BookSample::with_central(self.central.clone());
+        for (s, v) in self.scenarios.iter().enumerate() {
+            sampler.push(&mut sample, s, v)?;
+        }
+        sample.check()?;
+        Ok(sample)
+    }
+}
+
+/// What the hedges need of the book, a few numbers a scenario: its PV, its idiosyncratic
+/// part, and each swap's floating leg at π = 0. Gathered while the scenarios are valued,
+/// so that pricing a million scenarios does not keep a million scenarios' cash flows.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct BookSample {
+    /// The central path in full: its expected cash flows are the fixed legs' amounts.
+    pub central: ScenarioValue,
+    /// The book's PV per scenario (simulated when individual deaths were simulated).
+    pub pv: Vec<f64>,
+    /// `pv_simulated − pv_expected` per scenario (NaN when not simulated).
+    pub idiosyncratic: Vec<f64>,
+    /// Per `[[hedge.swap]]`, in config order: the floating leg's PV at π = 0 per scenario.
+    pub floating: Vec<Vec<f64>>,
+}
+
+impl BookSample {
+    /// An empty sample around the central path.
+    pub fn with_central(central: ScenarioValue) -> Self {
+        BookSample {
+            central,
+            ..BookSample::default()
+        }
+    }
+
+    /// Checks the central path and that there is a scenario.
     pub fn check(&self) -> Result<()> {
-        if self.scenarios.is_empty() {
+        if self.pv.is_empty() {
             return Err(Error::Numerical("hedges need at least one scenario".into()));
         }
-        let years = self.central.cash_expected.len();
-        if years == 0 || !all_finite(&self.central.cash_expected) {
+        if self.central.cash_expected.is_empty() || !all_finite(&self.central.cash_expected) {
             return Err(Error::Numerical(
                 "the central path has no finite best-estimate cash flows".into(),
             ));
         }
         if !self.central.pv_expected.is_finite() {
             return Err(Error::Numerical("the best estimate is not finite".into()));
-        }
-        for (s, v) in self.scenarios.iter().enumerate() {
-            let cash = realised_cash(v);
-            if cash.len() != years || !all_finite(cash) || !book_pv(v).is_finite() {
-                return Err(Error::Numerical(format!(
-                    "scenario {s}: cash flows must cover {years} policy years with finite values, found {} years",
-                    cash.len()
-                )));
-            }
-            if !v.cash_simulated.is_empty() && v.cash_expected.len() != years {
-                return Err(Error::Numerical(format!(
-                    "scenario {s}: expected cash flows cover {} policy years, not {years}",
-                    v.cash_expected.len()
-                )));
-            }
         }
         Ok(())
     }
@@ -66,21 +92,67 @@ impl<'a> BookResults<'a> {
         self.central.pv_expected
     }
 
-    /// The book's PV in every scenario (with individual deaths when they were simulated).
-    pub fn pv(&self) -> Vec<f64> {
-        self.scenarios.iter().map(book_pv).collect()
+    /// Standard deviation of the idiosyncratic part of the PV; `None` when individual
+    /// deaths were not simulated.
+    pub fn idiosyncratic_sd(&self) -> Option<f64> {
+        all_finite(&self.idiosyncratic).then(|| summarize(&self.idiosyncratic).std_dev)
+    }
+}
+
+/// Reduces each scenario's values to its [`BookSample`] figures.
+#[derive(Debug, Clone)]
+pub struct BookSampler {
+    years: usize,
+    swaps: Vec<(FloatingBasis, Vec<f64>)>,
+}
+
+impl BookSampler {
+    /// For the swaps of `config` on a book with `years` policy years of cash flow.
+    pub fn new(config: &HedgeConfig, curve: &DiscountCurve, years: usize) -> Self {
+        let swaps = config
+            .swap
+            .iter()
+            .map(|s| {
+                let covered = s.term.map_or(years, |t| (t as usize).min(years));
+                (s.floating, settlement_discounts(curve, covered))
+            })
+            .collect();
+        BookSampler { years, swaps }
     }
 
-    /// Standard deviation of the idiosyncratic part of the PV, `pv_simulated − pv_expected`;
-    /// `None` when individual deaths were not simulated.
-    pub fn idiosyncratic_sd(&self) -> Option<f64> {
-        let gaps: Vec<f64> = self
-            .scenarios
-            .iter()
-            .map(|v| v.pv_simulated - v.pv_expected)
-            .collect();
-        all_finite(&gaps).then(|| summarize(&gaps).std_dev)
+    /// Adds scenario `s` (counted from 0 among the stochastic ones) to `sample`.
+    pub fn push(&self, sample: &mut BookSample, s: usize, v: &ScenarioValue) -> Result<()> {
+        let years = self.years;
+        let cash = realised_cash(v);
+        if cash.len() != years || !all_finite(cash) || !book_pv(v).is_finite() {
+            return Err(Error::Numerical(format!(
+                "scenario {s}: cash flows must cover {years} policy years with finite values, found {} years",
+                cash.len()
+            )));
+        }
+        if !v.cash_simulated.is_empty() && v.cash_expected.len() != years {
+            return Err(Error::Numerical(format!(
+                "scenario {s}: expected cash flows cover {} policy years, not {years}",
+                v.cash_expected.len()
+            )));
+        }
+        sample.pv.push(book_pv(v));
+        sample.idiosyncratic.push(v.pv_simulated - v.pv_expected);
+        sample.floating.resize_with(self.swaps.len(), Vec::new);
+        for ((basis, discounts), out) in self.swaps.iter().zip(&mut sample.floating) {
+            out.push(floating_pv(*basis, v, discounts));
+        }
+        Ok(())
     }
+}
+
+/// PV at π = 0 of a swap's floating leg in one scenario.
+pub fn floating_pv(basis: FloatingBasis, v: &ScenarioValue, discounts: &[f64]) -> f64 {
+    let cash = match basis {
+        FloatingBasis::Indemnity => realised_cash(v),
+        FloatingBasis::Parametric => &v.cash_expected,
+    };
+    settled_pv(cash, discounts)
 }
 
 /// The realised benefits of a scenario: simulated when individual deaths were simulated,

@@ -61,7 +61,7 @@ pub use evaluate::{
     ContractSummary, HEDGE_COLUMNS, HedgeInputs, HedgeResults, HedgeSummary, HedgeTable,
     NotionalBasis, PremiumBasis, QForwardSummary, SwapSummary, evaluate,
 };
-pub use legs::{BookResults, Distribution, LegValues};
+pub use legs::{BookResults, BookSample, BookSampler, Distribution, LegValues};
 pub use pricing::{CostOfCapitalPrice, PremiumQuote, SharpePrice, cost_of_capital, sharpe};
 pub use qforward::{QForwardTerms, ReferenceCells, ReferenceRates, hedge_ratio, rate_at};
 pub use spec::{

@@ -7,7 +7,9 @@
 
 use crate::data::DiscountCurve;
 use crate::error::{Error, Result};
-use crate::hedge::legs::{BookResults, LegValues, realised_cash, settled_pv, settlement_discounts};
+use crate::hedge::legs::{
+    BookResults, BookSample, LegValues, floating_pv, settled_pv, settlement_discounts,
+};
 use crate::hedge::spec::{FloatingBasis, Side};
 
 /// The terms of one swap.
@@ -48,9 +50,41 @@ impl SwapTerms {
 
     /// The legs at π = 0 for the whole book, discounted on `curve`.
     pub fn legs(&self, book: &BookResults<'_>, curve: &DiscountCurve) -> Result<SwapLegs> {
-        let years = self.covered_years(book.years());
-        let discounts = settlement_discounts(curve, years);
-        let best_estimate_cash = book.central.cash_expected[..years].to_vec();
+        let discounts = settlement_discounts(curve, self.covered_years(book.years()));
+        let floating = book
+            .scenarios
+            .iter()
+            .map(|v| floating_pv(self.floating, v, &discounts))
+            .collect();
+        self.assemble(&book.central.cash_expected, floating, discounts)
+    }
+
+    /// The legs at π = 0 from a [`BookSample`], where this swap is `[[hedge.swap]]` number
+    /// `index` of the config the sample was gathered for.
+    pub fn legs_of(
+        &self,
+        sample: &BookSample,
+        index: usize,
+        curve: &DiscountCurve,
+    ) -> Result<SwapLegs> {
+        let floating = sample.floating.get(index).cloned().ok_or_else(|| {
+            Error::Numerical(format!(
+                "swap `{}`: no floating leg was gathered for swap {index}",
+                self.name
+            ))
+        })?;
+        let discounts = settlement_discounts(curve, self.covered_years(sample.years()));
+        self.assemble(&sample.central.cash_expected, floating, discounts)
+    }
+
+    fn assemble(
+        &self,
+        central_cash: &[f64],
+        floating: Vec<f64>,
+        discounts: Vec<f64>,
+    ) -> Result<SwapLegs> {
+        let years = discounts.len();
+        let best_estimate_cash = central_cash[..years].to_vec();
         let fixed_at_zero = settled_pv(&best_estimate_cash, &discounts);
         if fixed_at_zero <= 0.0 {
             return Err(Error::Numerical(format!(
@@ -58,19 +92,8 @@ impl SwapTerms {
                 self.name
             )));
         }
-        let floating = book
-            .scenarios
-            .iter()
-            .map(|v| {
-                let cash = match self.floating {
-                    FloatingBasis::Indemnity => realised_cash(v),
-                    FloatingBasis::Parametric => &v.cash_expected,
-                };
-                settled_pv(cash, &discounts)
-            })
-            .collect();
         Ok(SwapLegs {
-            floating_central: settled_pv(&book.central.cash_expected, &discounts),
+            floating_central: settled_pv(central_cash, &discounts),
             best_estimate_cash,
             discounts,
             fixed_at_zero,

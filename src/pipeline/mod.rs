@@ -14,8 +14,8 @@ use arrow_schema::{DataType, Field, Schema};
 
 use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
 use crate::error::{Error, Result};
-use crate::hedge::legs::BookResults;
-use crate::hedge::qforward::ReferenceCells;
+use crate::hedge::legs::{BookSample, BookSampler};
+use crate::hedge::qforward::{ReferenceCells, ReferenceRates};
 use crate::hedge::spec::HedgeConfig;
 use crate::hedge::{HedgeInputs, HedgeResults, evaluate};
 use crate::io::AtomicFile;
@@ -167,17 +167,21 @@ pub struct ValuationOutcome {
     /// The written `book.parquet`, from which the capital figures read the PVs again
     /// when they are not kept.
     pub book: Option<WrittenBook>,
-    /// Their full values, when kept for the hedges.
-    pub values: Vec<ScenarioValue>,
+    /// What the hedges need of every scenario, when hedges were asked for: a few numbers
+    /// a scenario, not its cash flows.
+    pub hedge_sample: Option<BookSample>,
     /// Whole-future e°x per (sex, age) reported, one value per stochastic scenario, for
     /// the report: the first [`LIFETIME_SCENARIOS_KEPT`] scenarios only (every scenario's are in
     /// `lifetimes.parquet`).
     pub lifetimes: Vec<((Sex, i32), Vec<f64>)>,
     /// The requested cells' q on the central path.
     pub central_probes: Vec<f64>,
-    /// The requested cells' q per stochastic scenario (for the report, the first
-    /// [`LIFETIME_SCENARIOS_KEPT`] only; for the hedges, all).
+    /// The requested cells' q per stochastic scenario, for the report: the first
+    /// [`LIFETIME_SCENARIOS_KEPT`] only.
     pub probes: Vec<Vec<f64>>,
+    /// When hedges were asked for: per q-forward reference cell (the first requested
+    /// cells), its q in every stochastic scenario, in scenario order.
+    pub reference_rates: Vec<Vec<f64>>,
     /// Period e°65 by sex and projected year, per stochastic scenario (for the report,
     /// the first [`LIFETIME_SCENARIOS_KEPT`] only).
     pub period: Vec<Vec<f64>>,
@@ -195,8 +199,9 @@ pub struct ValueRequest<'a> {
     pub ids: Range<u64>,
     /// Output folder, compression and shard naming.
     pub options: &'a OutputOptions,
-    /// Keep every scenario's full values (the hedges need the cash flows).
-    pub keep_values: bool,
+    /// Gather what these hedges need of every scenario (and keep every scenario's
+    /// reference cells).
+    pub hedges: Option<&'a HedgeConfig>,
     /// Keep what the report draws: every scenario's PVs (its histogram) and the chart
     /// inputs of the first [`LIFETIME_SCENARIOS_KEPT`] scenarios. Without a report nothing
     /// per scenario stays in memory: the capital figures read the PVs back from
@@ -218,11 +223,22 @@ pub fn value_book(
     let ValueRequest {
         ids,
         options,
-        keep_values,
+        hedges,
         report,
         extracts,
     } = request;
-    let (ids, keep_values, report) = (ids.clone(), *keep_values, *report);
+    let (ids, report) = (ids.clone(), *report);
+    let keep_values = hedges.is_some();
+    let sampler = match hedges {
+        Some(h) => Some(BookSampler::new(
+            h,
+            &DiscountCurve::from_config(config)?,
+            setup.prepared.years(),
+        )),
+        None => None,
+    };
+    let mut sample = sampler.as_ref().map(|_| BookSample::default());
+    let reference_cells = hedges.map_or(0, |h| ReferenceCells::of(h).cells.len());
     let settings = DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
@@ -235,6 +251,9 @@ pub fn value_book(
     if report || keep_values {
         outcome.scenarios.reserve_exact(n);
     }
+    outcome.reference_rates = (0..reference_cells)
+        .map(|_| Vec::with_capacity(n))
+        .collect();
     if report {
         outcome.pv_expected.reserve_exact(n);
         if settings.idiosyncratic {
@@ -252,15 +271,27 @@ pub fn value_book(
             files.write(chunk)?;
             for r in chunk {
                 if r.scenario == 0 {
+                    if let Some(sample) = &mut sample {
+                        sample.central = r.value.clone();
+                    }
                     outcome.central = Some(r.value.clone());
                     outcome.central_probes = r.probes.clone();
                     continue;
                 }
                 // Chart inputs are bounded like the lifetimes; the hedges need every
-                // scenario's reference cells, as they need every scenario's values.
+                // scenario's reference rates, as they need every scenario's values.
                 let keep_charts = report && outcome.stochastic < LIFETIME_SCENARIOS_KEPT;
-                if !r.probes.is_empty() && (keep_values || keep_charts) {
+                if !r.probes.is_empty() && keep_charts {
                     outcome.probes.push(r.probes.clone());
+                }
+                if r.probes.len() < reference_cells {
+                    return Err(Error::model(
+                        "hedge",
+                        format!("scenario {} lacks its reference rates", r.scenario),
+                    ));
+                }
+                for (column, &q) in outcome.reference_rates.iter_mut().zip(&r.probes) {
+                    column.push(q);
                 }
                 if !r.period.is_empty() && keep_charts {
                     outcome.period.push(r.period.clone());
@@ -289,14 +320,15 @@ pub fn value_book(
                         }
                     }
                 }
-                if keep_values {
-                    outcome.values.push(r.value.clone());
+                if let (Some(sampler), Some(sample)) = (&sampler, &mut sample) {
+                    sampler.push(sample, outcome.stochastic - 1, &r.value)?;
                 }
             }
             progress(chunk.len() as u64);
             Ok(())
         },
     )?;
+    outcome.hedge_sample = sample;
     let mut files = files.close()?;
     if !report {
         outcome.book = Some(WrittenBook::reopen(&mut files[0])?);
@@ -426,35 +458,49 @@ pub fn summarize(
     })
 }
 
-/// Prices and values the configured hedges on a whole run's valuation (kept with
-/// `keep_values` and the hedges' reference cells as the first probes).
+/// Prices and values the configured hedges on a whole run's valuation (gathered with
+/// `ValueRequest::hedges` and the hedges' reference cells as the first probes).
 pub fn hedge_stage(
     config: &Config,
     hedges: &HedgeConfig,
     setup: &ValuationSetup,
     outcome: &ValuationOutcome,
 ) -> Result<HedgeResults> {
-    let central = outcome
-        .central
-        .as_ref()
-        .ok_or_else(|| Error::model("hedge", "the central path (scenario 0) was not valued"))?;
-    if outcome.values.is_empty() {
-        return Err(Error::config(
-            &config.file,
-            "projection.noise",
-            "hedges are priced on stochastic scenarios: set `noise = true`",
+    if outcome.central.is_none() {
+        return Err(Error::model(
+            "hedge",
+            "the central path (scenario 0) was not valued",
         ));
     }
-    let cells = ReferenceCells::of(hedges);
-    let n = cells.cells.len();
-    let per_scenario: Vec<Vec<f64>> = outcome.probes.iter().map(|p| p[..n].to_vec()).collect();
-    let references = cells.assemble(&outcome.central_probes[..n], &per_scenario)?;
+    let sample = match &outcome.hedge_sample {
+        Some(s) if !s.pv.is_empty() => s,
+        _ => {
+            return Err(Error::config(
+                &config.file,
+                "projection.noise",
+                "hedges are priced on stochastic scenarios: set `noise = true`",
+            ));
+        }
+    };
+    let n = ReferenceCells::of(hedges).cells.len();
+    if outcome.central_probes.len() < n || outcome.reference_rates.len() != n {
+        return Err(Error::model(
+            "hedge",
+            "the reference rates of the q-forwards were not gathered",
+        ));
+    }
+    let references: Vec<ReferenceRates> = outcome
+        .central_probes
+        .iter()
+        .zip(&outcome.reference_rates)
+        .map(|(&central, realised)| ReferenceRates {
+            central,
+            realised: realised.clone(),
+        })
+        .collect();
     let curve = DiscountCurve::from_config(config)?;
     let inputs = HedgeInputs {
-        book: BookResults {
-            central,
-            scenarios: &outcome.values,
-        },
+        book: sample,
         curve: &curve,
         valuation_year: setup.year,
         references: &references,
@@ -470,7 +516,6 @@ pub fn write_hedge_table(
     results: &HedgeResults,
     outcome: &ValuationOutcome,
 ) -> Result<AtomicFile> {
-    let table = results.table(&outcome.scenarios)?;
     let schema = Arc::new(Schema::new(vec![
         Field::new("scenario", DataType::UInt32, false),
         Field::new("contract", DataType::Utf8, false),
@@ -479,30 +524,53 @@ pub fn write_hedge_table(
         Field::new("net", DataType::Float64, false),
     ]));
     let path = config.output_folder().join("hedge.parquet");
-    let columns: Vec<ArrayRef> = vec![
-        Arc::new(UInt32Array::from_iter_values(
-            table.scenario.iter().map(|&s| s as u32),
-        )),
-        Arc::new(StringArray::from(table.contract)),
-        Arc::new(Float64Array::from(table.fixed_leg)),
-        Arc::new(Float64Array::from(table.floating_leg)),
-        Arc::new(Float64Array::from(table.net)),
-    ];
-    let batch = RecordBatch::try_new(schema.clone(), columns).map_err(|e| Error::Parquet {
-        path: path.clone(),
-        message: e.to_string(),
-    })?;
     let mut sink = ParquetSink::create(
         &path,
-        schema,
+        schema.clone(),
         config.output.compression,
         HEDGE_DESCRIPTION,
         provenance,
         DEFAULT_ROWS_PER_GROUP,
     )?;
-    sink.write(&batch)?;
+    // Contract by contract, a batch of scenarios at a time: the rows are never all in
+    // memory at once.
+    let ids = &outcome.scenarios;
+    for (name, legs) in &results.values {
+        if legs.net.len() != ids.len() || legs.floating_leg.len() != ids.len() {
+            return Err(Error::Numerical(format!(
+                "hedge `{name}` has {} scenarios but {} scenario numbers were kept",
+                legs.net.len(),
+                ids.len()
+            )));
+        }
+        for start in (0..ids.len()).step_by(HEDGE_BATCH_ROWS) {
+            let end = (start + HEDGE_BATCH_ROWS).min(ids.len());
+            let rows = end - start;
+            let columns: Vec<ArrayRef> = vec![
+                Arc::new(UInt32Array::from_iter_values(
+                    ids[start..end].iter().map(|&s| s as u32),
+                )),
+                Arc::new(StringArray::from_iter_values(std::iter::repeat_n(
+                    name.as_str(),
+                    rows,
+                ))),
+                Arc::new(Float64Array::from(vec![legs.fixed_leg; rows])),
+                Arc::new(Float64Array::from(legs.floating_leg[start..end].to_vec())),
+                Arc::new(Float64Array::from(legs.net[start..end].to_vec())),
+            ];
+            let batch =
+                RecordBatch::try_new(schema.clone(), columns).map_err(|e| Error::Parquet {
+                    path: path.clone(),
+                    message: e.to_string(),
+                })?;
+            sink.write(&batch)?;
+        }
+    }
     sink.close()
 }
+
+/// Rows of `hedge.parquet` built at a time.
+const HEDGE_BATCH_ROWS: usize = 1 << 16;
 
 const HEDGE_DESCRIPTION: &str = "scenario: scenario number; contract: hedge name from the \
     config; fixed_leg: PV of the fixed leg; floating_leg: PV of the floating leg in the \

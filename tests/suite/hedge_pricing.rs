@@ -370,11 +370,14 @@ fn evaluate_prices_every_contract_and_lays_out_rows() {
         2
     ];
     let curve = flat(0.03);
+    let sample = BookResults {
+        central: &central,
+        scenarios: &scenarios,
+    }
+    .sample(&hedge, &curve)
+    .unwrap();
     let inputs = HedgeInputs {
-        book: BookResults {
-            central: &central,
-            scenarios: &scenarios,
-        },
+        book: &sample,
         curve: &curve,
         valuation_year: config.valuation_year(),
         references: &references,
@@ -449,13 +452,16 @@ fn hedge_ratio_notional_needs_a_varying_rate() {
         2
     ];
     let curve = flat(0.03);
+    let sample = BookResults {
+        central: &central,
+        scenarios: &scenarios,
+    }
+    .sample(&hedge, &curve)
+    .unwrap();
     let err = evaluate(
         &hedge,
         &HedgeInputs {
-            book: BookResults {
-                central: &central,
-                scenarios: &scenarios,
-            },
+            book: &sample,
             curve: &curve,
             valuation_year: 2025,
             references: &references,

@@ -233,13 +233,17 @@ fn config() -> Config {
 fn run(s: &Sample) -> HedgeResults {
     let config = config();
     let curve = DiscountCurve::Flat { rate_pa: RATE };
+    let hedges = config.hedge.as_ref().unwrap();
+    let sample = BookResults {
+        central: &s.central,
+        scenarios: &s.scenarios,
+    }
+    .sample(hedges, &curve)
+    .unwrap();
     evaluate(
-        config.hedge.as_ref().unwrap(),
+        hedges,
         &HedgeInputs {
-            book: BookResults {
-                central: &s.central,
-                scenarios: &s.scenarios,
-            },
+            book: &sample,
             curve: &curve,
             valuation_year: YEAR,
             references: std::slice::from_ref(&s.reference),

@@ -4,8 +4,28 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-use arrow_array::{Array, Float64Array};
+use arrow_array::{Array, Float64Array, StringArray, UInt32Array};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
+
+/// The `contract` and `scenario` columns of `hedge.parquet`.
+fn labels(path: &Path) -> (Vec<String>, Vec<u32>) {
+    let file = std::fs::File::open(path).unwrap();
+    let (mut names, mut ids) = (Vec::new(), Vec::new());
+    for batch in ParquetRecordBatchReaderBuilder::try_new(file)
+        .unwrap()
+        .build()
+        .unwrap()
+    {
+        let batch = batch.unwrap();
+        let c = batch.column_by_name("contract").unwrap();
+        let c = c.as_any().downcast_ref::<StringArray>().unwrap();
+        names.extend(c.iter().map(|v| v.unwrap().to_string()));
+        let s = batch.column_by_name("scenario").unwrap();
+        let s = s.as_any().downcast_ref::<UInt32Array>().unwrap();
+        ids.extend(s.values().iter().copied());
+    }
+    (names, ids)
+}
 
 fn config(dir: &Path) -> PathBuf {
     // The shipped swap-pricing example, cut down to a few scenarios.
@@ -155,8 +175,32 @@ fn hedge_prices_the_contracts_and_needs_a_hedge_section() {
         !out.join("book.parquet").exists(),
         "hedge writes only the hedge results"
     );
-    // Three contracts × 80 scenarios.
-    assert_eq!(column(&out.join("hedge.parquet"), "net").len(), 240);
+    // Three contracts × 80 scenarios, contract by contract in config order, each over
+    // scenarios 1..=80, and each contract's net averaging to hedge.json's mean.
+    let hedge = out.join("hedge.parquet");
+    let net = column(&hedge, "net");
+    assert_eq!(net.len(), 240);
+    let (contracts, scenarios) = labels(&hedge);
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("hedge.json")).unwrap()).unwrap();
+    let listed = json["contracts"].as_array().unwrap();
+    assert_eq!(listed.len(), 3);
+    for (i, c) in listed.iter().enumerate() {
+        let rows = i * 80..(i + 1) * 80;
+        assert!(
+            contracts[rows.clone()]
+                .iter()
+                .all(|n| n == c["name"].as_str().unwrap())
+        );
+        assert_eq!(scenarios[rows.clone()], (1..=80).collect::<Vec<u32>>()[..]);
+        let mean = net[rows].iter().sum::<f64>() / 80.0;
+        let expected = c["net"]["mean"].as_f64().unwrap();
+        assert!(
+            (mean - expected).abs() <= 1e-9 * expected.abs().max(1.0),
+            "{}: {mean} against {expected}",
+            c["name"]
+        );
+    }
 
     let text = std::fs::read_to_string(&cfg).unwrap();
     let cut = text.find("[hedge]").unwrap();
