@@ -10,6 +10,7 @@ use serde::Serialize;
 use crate::data::DiscountCurve;
 use crate::error::{Error, Result};
 use crate::hedge::spec::{FloatingBasis, HedgeConfig};
+use crate::hedge::swap::covered_years;
 use crate::risk::capital::REPORTED_QUANTILES;
 use crate::risk::quantile::{quantile_sorted, sorted, summarize};
 use crate::valuation::ScenarioValue;
@@ -113,7 +114,7 @@ impl BookSampler {
             .swap
             .iter()
             .map(|s| {
-                let covered = s.term.map_or(years, |t| (t as usize).min(years));
+                let covered = covered_years(s.term.map(|t| t as usize), years);
                 (s.floating, settlement_discounts(curve, covered))
             })
             .collect();

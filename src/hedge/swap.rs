@@ -27,6 +27,12 @@ pub struct SwapTerms {
     pub side: Side,
 }
 
+/// Policy years a swap of `term_years` (`None`: to run-off) covers on a book with `years`
+/// years of cash flow.
+pub fn covered_years(term_years: Option<usize>, years: usize) -> usize {
+    term_years.map_or(years, |t| t.min(years))
+}
+
 /// A whole-book swap's legs at π = 0, before share and side.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SwapLegs {
@@ -45,7 +51,7 @@ pub struct SwapLegs {
 impl SwapTerms {
     /// Policy years the swap covers on a book with `years` years of cash flow.
     pub fn covered_years(&self, years: usize) -> usize {
-        self.term_years.map_or(years, |t| t.min(years))
+        covered_years(self.term_years, years)
     }
 
     /// The legs at π = 0 for the whole book, discounted on `curve`.

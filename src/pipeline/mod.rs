@@ -228,7 +228,8 @@ pub fn value_book(
         extracts,
     } = request;
     let (ids, report) = (ids.clone(), *report);
-    let keep_values = hedges.is_some();
+    // The hedges' table names every scenario, as the report's histogram does.
+    let keep_ids = report || hedges.is_some();
     let sampler = match hedges {
         Some(h) => Some(BookSampler::new(
             h,
@@ -248,7 +249,7 @@ pub fn value_book(
     // Exact capacity: growth by doubling would hold up to twice the per-scenario figures,
     // and three times while a grown vector is copied.
     let n = (ids.end - ids.start) as usize;
-    if report || keep_values {
+    if keep_ids {
         outcome.scenarios.reserve_exact(n);
     }
     outcome.reference_rates = (0..reference_cells)
@@ -297,7 +298,7 @@ pub fn value_book(
                     outcome.period.push(r.period.clone());
                 }
                 outcome.stochastic += 1;
-                if report || keep_values {
+                if keep_ids {
                     outcome.scenarios.push(r.scenario);
                 }
                 if report {
