@@ -162,7 +162,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         hedges: hedges.as_ref(),
         provenance: &provenance,
         run_at,
-    });
+    })?;
     let report = config.output_folder().join("report.html");
     crate::io::report::write(&report, &data)?;
     stages.done("report");

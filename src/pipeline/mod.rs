@@ -157,15 +157,11 @@ pub struct ValuationOutcome {
     pub central: Option<ScenarioValue>,
     /// Stochastic scenarios valued.
     pub stochastic: usize,
-    /// Scenario numbers of the stochastic scenarios valued, in order, when their PVs or
-    /// values are kept.
+    /// Scenario numbers of the stochastic scenarios valued, in order, when hedges were
+    /// asked for (they name the rows of `hedge.parquet`).
     pub scenarios: Vec<u64>,
-    /// Their trend-only PVs, when kept.
-    pub pv_expected: Vec<f64>,
-    /// Their PVs with deaths simulated, when kept (empty without idiosyncratic risk).
-    pub pv_simulated: Vec<f64>,
-    /// The written `book.parquet`, from which the capital figures read the PVs again
-    /// when they are not kept.
+    /// The written `book.parquet`, from which the capital figures and the report's
+    /// histogram read the PVs again: no PV is kept in memory.
     pub book: Option<WrittenBook>,
     /// What the hedges need of every scenario, when hedges were asked for: a few numbers
     /// a scenario, not its cash flows.
@@ -189,8 +185,7 @@ pub struct ValuationOutcome {
 
 /// Stochastic scenarios whose whole-future e°x a [`ValuationOutcome`] keeps in memory for
 /// the report: enough for a fan chart, and a bound so that a million-scenario run's memory
-/// does not grow with its cohorts times its scenarios (with a report, the per-scenario
-/// PVs, 24 bytes each, are all that grows).
+/// does not grow with its cohorts times its scenarios.
 pub const LIFETIME_SCENARIOS_KEPT: usize = 10_000;
 
 /// Which scenarios to value, where to write, and what to keep.
@@ -202,10 +197,9 @@ pub struct ValueRequest<'a> {
     /// Gather what these hedges need of every scenario (and keep every scenario's
     /// reference cells).
     pub hedges: Option<&'a HedgeConfig>,
-    /// Keep what the report draws: every scenario's PVs (its histogram) and the chart
-    /// inputs of the first [`LIFETIME_SCENARIOS_KEPT`] scenarios. Without a report nothing
-    /// per scenario stays in memory: the capital figures read the PVs back from
-    /// `book.parquet`, so memory does not grow with the scenario count.
+    /// Keep what the report's charts draw of the first [`LIFETIME_SCENARIOS_KEPT`]
+    /// scenarios. No PV stays in memory: the capital figures and the report's histogram
+    /// read them back from `book.parquet`, so memory does not grow with the scenario count.
     pub report: bool,
     /// Cells and period figures to read off each scenario.
     pub extracts: &'a Extracts,
@@ -228,8 +222,8 @@ pub fn value_book(
         extracts,
     } = request;
     let (ids, report) = (ids.clone(), *report);
-    // The hedges' table names every scenario, as the report's histogram does.
-    let keep_ids = report || hedges.is_some();
+    // The hedges' table names every scenario.
+    let keep_ids = hedges.is_some();
     let sampler = match hedges {
         Some(h) => Some(BookSampler::new(
             h,
@@ -255,12 +249,6 @@ pub fn value_book(
     outcome.reference_rates = (0..reference_cells)
         .map(|_| Vec::with_capacity(n))
         .collect();
-    if report {
-        outcome.pv_expected.reserve_exact(n);
-        if settings.idiosyncratic {
-            outcome.pv_simulated.reserve_exact(n);
-        }
-    }
     value_scenarios(
         projector,
         &setup.prepared,
@@ -301,12 +289,6 @@ pub fn value_book(
                 if keep_ids {
                     outcome.scenarios.push(r.scenario);
                 }
-                if report {
-                    outcome.pv_expected.push(r.value.pv_expected);
-                    if settings.idiosyncratic {
-                        outcome.pv_simulated.push(r.value.pv_simulated);
-                    }
-                }
                 let keep_lifetimes = report && outcome.stochastic <= LIFETIME_SCENARIOS_KEPT;
                 for row in r.lifetimes.iter().filter(|l| {
                     keep_lifetimes && l.horizon as i32 == whole_future_horizon(l, setup)
@@ -331,9 +313,7 @@ pub fn value_book(
     )?;
     outcome.hedge_sample = sample;
     let mut files = files.close()?;
-    if !report {
-        outcome.book = Some(WrittenBook::reopen(&mut files[0])?);
-    }
+    outcome.book = Some(WrittenBook::reopen(&mut files[0])?);
     Ok((outcome, files))
 }
 
@@ -414,10 +394,12 @@ pub fn summarize(
                 .transpose()?;
             (streamed("pv_expected")?, simulated)
         }
-        None => (
-            capital(&outcome.pv_expected),
-            (!outcome.pv_simulated.is_empty()).then(|| capital(&outcome.pv_simulated)),
-        ),
+        None => {
+            return Err(Error::model(
+                "valuation",
+                "book.parquet was not kept for the summary",
+            ));
+        }
     };
     let decrease = config.capital.standard_stress;
     let stressed = setup.central_value(projector, 1.0 - decrease)?;

@@ -4,8 +4,10 @@
 //! same values that go to `summary.json` and the Parquet files, so the three agree.
 
 use crate::data::{Config, Experience, Sex};
+use crate::error::Result;
 use crate::hedge::HedgeResults;
 use crate::hedge::evaluate::ContractSummary;
+use crate::io::report::charts::histogram::Bins;
 use crate::io::report::{
     BasisItem, CapitalColumn, CapitalTable, FAN_PROBABILITIES, FanChart, FanMeasure, FanPoint,
     FitRow, HedgeRow, InputFile, LifetimeDistribution, PvDistribution, ReportData, ResidualMap,
@@ -16,6 +18,7 @@ use crate::models::FitSet;
 use crate::pipeline::ValuationOutcome;
 use crate::projection::Projector;
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
+use crate::risk::order::Sample;
 use crate::risk::quantile::{quantile_sorted, sorted};
 use crate::risk::summary::RunSummary;
 
@@ -63,7 +66,7 @@ pub struct ReportInputs<'a> {
 }
 
 /// The report's data.
-pub fn report_data(inputs: &ReportInputs<'_>) -> ReportData {
+pub fn report_data(inputs: &ReportInputs<'_>) -> Result<ReportData> {
     let config = inputs.config;
     let (ages, years) = (config.ages(), config.years());
     let fit_rows = inputs
@@ -123,9 +126,9 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> ReportData {
     }
     if let (Some(summary), Some(outcome)) = (inputs.summary, inputs.outcome) {
         let level = config.capital.levels.iter().copied().fold(0.0, f64::max);
-        let (label, values, column) = match &summary.trend_idiosyncratic {
-            Some(c) => ("trend + idiosyncratic", &outcome.pv_simulated, c),
-            None => ("trend only", &outcome.pv_expected, &summary.trend),
+        let (label, name, column) = match &summary.trend_idiosyncratic {
+            Some(c) => ("trend + idiosyncratic", "pv_simulated", c),
+            None => ("trend only", "pv_expected", &summary.trend),
         };
         let var = column
             .tails
@@ -133,14 +136,22 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> ReportData {
             .find(|t| (t.level - level).abs() < 1e-12)
             .map(|t| t.var)
             .unwrap_or(f64::NAN);
-        data.present_values = (!values.is_empty()).then(|| PvDistribution {
-            label: label.to_string(),
-            values: values.clone(),
-            best_estimate: summary.best_estimate,
-            level,
-            var,
-            stressed: Some(summary.standard_stress.stressed_pv),
-        });
+        // Binned in one more pass over the written book, as the capital figures were read.
+        if let (Some(book), true) = (&outcome.book, outcome.stochastic > 0) {
+            let range = (column.min, column.max);
+            let mut bins = Bins::for_sample(range, column.scenarios);
+            book.column(name).pass(&mut |v| bins.add(v))?;
+            data.present_values = Some(PvDistribution {
+                label: label.to_string(),
+                scenarios: column.scenarios,
+                range: Some(range),
+                shares: bins.shares(),
+                best_estimate: summary.best_estimate,
+                level,
+                var,
+                stressed: Some(summary.standard_stress.stressed_pv),
+            });
+        }
         let mut run_off = Vec::new();
         run_off.extend(CapitalColumn::from_summary(
             "Trend only",
@@ -171,7 +182,7 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> ReportData {
             config.capital.levels.iter().copied().fold(0.0, f64::max),
         );
     }
-    data
+    Ok(data)
 }
 
 fn run_info(inputs: &ReportInputs<'_>) -> RunInfo {

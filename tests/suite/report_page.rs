@@ -397,7 +397,7 @@ fn missing_values_show_as_not_available_without_failing() {
     data.residuals[0].residuals[2][2] = nan;
     data.lifetimes[0].values[0] = nan;
     if let Some(pv) = &mut data.present_values {
-        pv.values[0] = nan;
+        pv.shares[0] = nan;
         pv.stressed = Some(nan);
     }
     if let Some(c) = &mut data.capital {

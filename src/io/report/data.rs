@@ -3,11 +3,15 @@
 //! Every field is a number, a string or a list of them, so the pipeline can fill a report
 //! without the report knowing about models or scenarios, and the whole thing serialises to
 //! JSON for inspection. Figures the report can derive (run-off capital, percentages, BIC
-//! ranks, histograms) are derived when rendering, so the page can never contradict itself.
+//! ranks, lifetime histograms) are derived when rendering, so the page can never
+//! contradict itself. The PV histogram comes binned: its values can be a million
+//! scenarios read back from `book.parquet`, which the pipeline bins in one pass.
 
 use serde::Serialize;
 
 use crate::data::Sex;
+use crate::io::report::charts::finite_range;
+use crate::io::report::charts::histogram::Bins;
 use crate::models::FitDiagnostics;
 use crate::risk::capital::CapitalSummary;
 
@@ -226,13 +230,18 @@ pub struct LifetimeDistribution {
     pub values: Vec<f64>,
 }
 
-/// Scenario present values of the book with the reference values marked on the chart.
+/// Scenario present values of the book, binned, with the reference values marked on the
+/// chart.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct PvDistribution {
     /// What the values are, e.g. `trend + idiosyncratic`.
     pub label: String,
-    /// Present value in each scenario.
-    pub values: Vec<f64>,
+    /// Scenarios valued.
+    pub scenarios: usize,
+    /// Smallest and largest finite value; `None` when there is none.
+    pub range: Option<(f64, f64)>,
+    /// Share of the scenarios in each bin of [`Bins::for_sample`] over `range`.
+    pub shares: Vec<f64>,
     /// Best estimate (PV on the central path).
     pub best_estimate: f64,
     /// Confidence level of `var`, e.g. 0.995.
@@ -241,6 +250,28 @@ pub struct PvDistribution {
     pub var: f64,
     /// Best estimate under the standard-formula longevity stress.
     pub stressed: Option<f64>,
+}
+
+impl PvDistribution {
+    /// Bins `values` held in memory; the reference values are set by the caller.
+    pub fn of(label: &str, values: &[f64]) -> Self {
+        let range = finite_range(values.iter().copied());
+        let shares = range.map_or_else(Vec::new, |r| {
+            let mut bins = Bins::for_sample(r, values.len());
+            values.iter().for_each(|&v| bins.add(v));
+            bins.shares()
+        });
+        PvDistribution {
+            label: label.to_string(),
+            scenarios: values.len(),
+            range,
+            shares,
+            best_estimate: f64::NAN,
+            level: f64::NAN,
+            var: f64::NAN,
+            stressed: None,
+        }
+    }
 }
 
 /// Capital figures at one confidence level.
@@ -312,4 +343,31 @@ pub struct HedgeRow {
     pub capital_without: f64,
     /// Capital of the hedged book.
     pub capital_with: f64,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn pv_values_are_binned_by_the_square_root_rule() {
+        // 100 evenly spaced values: 10 bins (√100) over [0, 99], a tenth in each.
+        let values: Vec<f64> = (0..100).map(f64::from).collect();
+        let pv = PvDistribution::of("trend only", &values);
+        assert_eq!(pv.scenarios, 100);
+        assert_eq!(pv.range, Some((0.0, 99.0)));
+        assert_eq!(pv.shares.len(), 10);
+        assert!(
+            pv.shares.iter().all(|&s| (s - 0.1).abs() < 1e-12),
+            "{:?}",
+            pv.shares
+        );
+        // Non-finite values are left out of the shares but counted as scenarios.
+        let mut gappy = values.clone();
+        gappy[0] = f64::NAN;
+        let pv = PvDistribution::of("trend only", &gappy);
+        assert_eq!(pv.range, Some((1.0, 99.0)));
+        assert!((pv.shares.iter().sum::<f64>() - 1.0).abs() < 1e-12);
+        assert!(PvDistribution::of("none", &[]).range.is_none());
+    }
 }

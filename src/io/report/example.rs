@@ -238,12 +238,11 @@ impl ReportData {
             fans,
             lifetimes,
             present_values: Some(PvDistribution {
-                label: "trend + idiosyncratic".to_string(),
                 best_estimate,
                 level: LEVEL,
                 var: full_var,
                 stressed: Some(stressed_value),
-                values: with_deaths,
+                ..PvDistribution::of("trend + idiosyncratic", &with_deaths)
             }),
             capital: Some(CapitalTable {
                 level: LEVEL,

@@ -221,7 +221,7 @@ fn capital_section(data: &ReportData) -> Result<Option<Section>> {
         body.push_str(&capital_tables(table, &data.currency));
     }
     if let Some(pv) = &data.present_values
-        && pv.values.iter().any(|v| v.is_finite())
+        && pv.range.is_some()
     {
         let svg = charts::pv_chart(pv, &data.currency)?;
         body.push_str(&figure(
@@ -230,7 +230,7 @@ fn capital_section(data: &ReportData) -> Result<Option<Section>> {
             Some(&format!(
                 "{} scenarios. Vertical lines mark the best estimate, the VaR at {} and, where \
                  computed, the value under the standard-formula longevity stress.",
-                fixed(pv.values.len() as f64, 0),
+                fixed(pv.scenarios as f64, 0),
                 format::level(pv.level)
             )),
         ));

@@ -21,29 +21,68 @@ const Y_DESC: &str = "Probability (share of scenarios in bin)";
 
 /// Shares of the finite `values` falling in each of `count` equal bins over `[lo, hi]`.
 pub fn shares(values: &[f64], lo: f64, hi: f64, count: usize) -> Vec<f64> {
-    let mut counts = vec![0usize; count];
-    let width = (hi - lo) / count as f64;
-    let mut total = 0usize;
-    for &v in values.iter().filter(|v| v.is_finite()) {
-        let i = ((v - lo) / width).floor();
+    let mut bins = Bins::new(lo, hi, count);
+    values.iter().for_each(|&v| bins.add(v));
+    bins.shares()
+}
+
+/// Equal bins over `[lo, hi]`, filled one value at a time (so a sample read back from a
+/// file in passes is binned as one held in memory).
+#[derive(Debug, Clone)]
+pub struct Bins {
+    lo: f64,
+    width: f64,
+    counts: Vec<usize>,
+    total: usize,
+}
+
+impl Bins {
+    /// `count` empty bins over `[lo, hi]`.
+    pub fn new(lo: f64, hi: f64, count: usize) -> Self {
+        let count = count.max(1);
+        Bins {
+            lo,
+            width: (hi - lo) / count as f64,
+            counts: vec![0; count],
+            total: 0,
+        }
+    }
+
+    /// The bins a PV histogram of `scenarios` values over `range` (smallest, largest)
+    /// draws: the square-root rule over the range.
+    pub fn for_sample(range: (f64, f64), scenarios: usize) -> Self {
+        let (lo, hi) = padded(range, 0.0);
+        Bins::new(lo, hi, bin_count(scenarios))
+    }
+
+    /// Counts `v` (non-finite values are left out; the ends take what falls beyond them).
+    pub fn add(&mut self, v: f64) {
+        if !v.is_finite() {
+            return;
+        }
+        let i = ((v - self.lo) / self.width).floor();
         let i = if i < 0.0 {
             0
         } else {
-            (i as usize).min(count - 1)
+            (i as usize).min(self.counts.len() - 1)
         };
-        counts[i] += 1;
-        total += 1;
+        self.counts[i] += 1;
+        self.total += 1;
     }
-    counts
-        .into_iter()
-        .map(|c| {
-            if total == 0 {
-                0.0
-            } else {
-                c as f64 / total as f64
-            }
-        })
-        .collect()
+
+    /// Share of the counted values in each bin.
+    pub fn shares(&self) -> Vec<f64> {
+        self.counts
+            .iter()
+            .map(|&c| {
+                if self.total == 0 {
+                    0.0
+                } else {
+                    c as f64 / self.total as f64
+                }
+            })
+            .collect()
+    }
 }
 
 /// Bins for `n` values: the square-root rule, kept between 10 and 60.
@@ -90,17 +129,26 @@ pub fn pv_chart(pv: &PvDistribution, currency: &str) -> Result<String> {
         "Scenarios",
     )];
     legend.extend(markers.iter().map(|m| m.1.clone()));
-    let range = finite_range(pv.values.iter().copied().chain(markers.iter().map(|m| m.0)))
-        .unwrap_or((0.0, 1.0));
-    let data_range = finite_range(pv.values.iter().copied()).unwrap_or(range);
+    let data = pv.range.filter(|(lo, hi)| lo.is_finite() && hi.is_finite());
+    let range = finite_range(
+        data.iter()
+            .flat_map(|&(lo, hi)| [lo, hi])
+            .chain(markers.iter().map(|m| m.0)),
+    )
+    .unwrap_or((0.0, 1.0));
+    let data_range = data.unwrap_or(range);
     let (scale, unit) = if range.0.abs().max(range.1.abs()) >= 1e6 {
         (1e6, format!("millions of {currency}"))
     } else {
         (1.0, currency.to_string())
     };
-    let bins = bin_count(pv.values.len());
+    let bins = pv.shares.len().max(1);
     let (lo, hi) = padded(data_range, 0.0);
-    let bar_shares = shares(&pv.values, lo, hi, bins);
+    let bar_shares: Vec<f64> = pv
+        .shares
+        .iter()
+        .map(|&s| if s.is_finite() { s } else { 0.0 })
+        .collect();
     let width = (hi - lo) / bins as f64;
     let top = bar_shares.iter().copied().fold(0.0, f64::max).max(1e-9) * 1.08;
     let (x_lo, x_hi) = padded(range, 0.04);
