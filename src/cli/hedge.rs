@@ -59,9 +59,11 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
         row_group_rows: ROW_GROUP_ROWS,
         provenance: provenance.clone(),
     };
+    let probes = ReferenceCells::of(&hedges).cells;
     let extracts = Extracts {
-        probes: ReferenceCells::of(&hedges).cells,
-        period: false,
+        every_scenario: probes.len(),
+        probes,
+        ..Extracts::default()
     };
     let request = ValueRequest {
         ids,

@@ -15,8 +15,8 @@ use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
 use crate::pipeline::report::{ReportInputs, fan_probes, report_data};
 use crate::pipeline::{
-    ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, summarize, value_book,
-    write_hedge_table,
+    LIFETIME_SCENARIOS_KEPT, ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, summarize,
+    value_book, write_hedge_table,
 };
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{OutputOptions, scenario_ids, write_projection};
@@ -106,9 +106,12 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         }
         probe_offset = probes.len();
         probes.extend(fan_probes(&config, &projector));
+        // The charts draw the first stochastic scenarios (and the central path).
         let extracts = Extracts {
             probes,
+            every_scenario: probe_offset,
             period: true,
+            charts_end: ids.start.max(1) + LIFETIME_SCENARIOS_KEPT as u64,
         };
         let request = ValueRequest {
             ids,

@@ -12,13 +12,16 @@ use std::path::PathBuf;
 use std::str::FromStr;
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, Int16Array, StringArray, UInt32Array};
+use arrow_array::{ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::basic::Encoding;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
-use crate::io::parquet::{ColumnLayout, EncodedRowGroup, RowGroupEncoder, RowGroupSink};
+use crate::io::parquet::{
+    ColumnLayout, EncodedRowGroup, ParquetSink, RowGroupEncoder, RowGroupSink,
+    STREAMED_ROWS_PER_GROUP,
+};
 use crate::io::provenance::{Provenance, retire_stale_records};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::scenarios::{Projector, ScenarioPaths};
@@ -264,7 +267,14 @@ fn label_column(keys: &[i8], labels: &[&str]) -> ArrayRef {
 }
 
 /// One chunk's row group for each of paths, factors and period (`None` where not written).
-type ChunkGroups = [Option<EncodedRowGroup>; 3];
+/// One chunk's output: the paths' row group, encoded on the worker (the bulk of the
+/// work), and the factors' and period figures' columns, which their writers gather into
+/// large row groups.
+struct ChunkGroups {
+    paths: Option<EncodedRowGroup>,
+    factors: Vec<ArrayRef>,
+    period: Option<Vec<ArrayRef>>,
+}
 
 struct Layout {
     sex_labels: Vec<&'static str>,
@@ -278,12 +288,23 @@ struct Layout {
     period_index: Option<usize>,
 }
 
-/// Generates and encodes scenarios `range` into one row group per file.
+/// Most scenarios a chunk holds when paths are not written.
+const MAX_CHUNK_SCENARIOS: usize = 256;
+
+fn record_batch(schema: &SchemaRef, columns: Vec<ArrayRef>, stem: &str) -> Result<RecordBatch> {
+    RecordBatch::try_new(Arc::clone(schema), columns).map_err(|e| Error::Parquet {
+        path: PathBuf::from(stem),
+        message: e.to_string(),
+    })
+}
+
+/// Generates scenarios `range`: one row group of paths (when written), and the columns of
+/// the factors and period figures.
 fn encode_chunk(
     projector: &Projector,
     layout: &Layout,
     range: Range<u64>,
-    encoders: &[Option<Arc<RowGroupEncoder>>; 3],
+    paths_encoder: Option<&RowGroupEncoder>,
 ) -> Result<ChunkGroups> {
     let mut buf = projector.buffer();
     let (years, ages) = (buf.years(), buf.ages());
@@ -319,28 +340,31 @@ fn encode_chunk(
         factor_values,
         period,
     } = cols;
-    let mut out: ChunkGroups = [None, None, None];
-    if let (Some(p), Some(enc)) = (paths, &encoders[0]) {
-        let mut arrays = p.keys.arrays(&layout.sex_labels);
-        arrays.push(Arc::new(Int16Array::from(p.age)));
-        arrays.push(Arc::new(Float64Array::from(p.q)));
-        if let Some(m) = p.m {
-            arrays.push(Arc::new(Float64Array::from(m)));
+    let paths = match (paths, paths_encoder) {
+        (Some(p), Some(enc)) => {
+            let mut arrays = p.keys.arrays(&layout.sex_labels);
+            arrays.push(Arc::new(Int16Array::from(p.age)));
+            arrays.push(Arc::new(Float64Array::from(p.q)));
+            if let Some(m) = p.m {
+                arrays.push(Arc::new(Float64Array::from(m)));
+            }
+            Some(enc.encode(&arrays)?)
         }
-        out[0] = Some(enc.encode(&arrays)?);
-    }
-    if let Some(enc) = &encoders[1] {
-        let mut arrays = factors.arrays(&layout.sex_labels);
-        arrays.push(label_column(&factor_keys, &layout.factor_labels));
-        arrays.push(Arc::new(Float64Array::from(factor_values)));
-        out[1] = Some(enc.encode(&arrays)?);
-    }
-    if let (Some((keys, e65)), Some(enc)) = (period, &encoders[2]) {
+        _ => None,
+    };
+    let mut factor_arrays = factors.arrays(&layout.sex_labels);
+    factor_arrays.push(label_column(&factor_keys, &layout.factor_labels));
+    factor_arrays.push(Arc::new(Float64Array::from(factor_values)));
+    let period = period.map(|(keys, e65)| {
         let mut arrays = keys.arrays(&layout.sex_labels);
-        arrays.push(Arc::new(Float64Array::from(e65)));
-        out[2] = Some(enc.encode(&arrays)?);
-    }
-    Ok(out)
+        arrays.push(Arc::new(Float64Array::from(e65)) as ArrayRef);
+        arrays
+    });
+    Ok(ChunkGroups {
+        paths,
+        factors: factor_arrays,
+        period,
+    })
 }
 
 fn append_scenario(
@@ -430,44 +454,63 @@ pub fn write_projection(
         central_rates,
         period_index: ages.index(PERIOD_AGE),
     };
-    let mut sinks: [Option<RowGroupSink>; 3] = [None, None, None];
-    let mut encoders: [Option<Arc<RowGroupEncoder>>; 3] = [None, None, None];
+    // Paths, by far the largest file, are encoded on the workers a row group per chunk;
+    // the factors and period figures are gathered by their writers into large row groups
+    // (their pages wait on disk), so their footers stay small however many scenarios.
     let mut files = Vec::new();
-    let plan: [(bool, &str, SchemaRef, &str); 3] = [
-        (
-            options.paths,
-            "paths",
-            paths_schema(central_rates),
-            PATHS_DESCRIPTION,
-        ),
-        (true, "factors", factors_schema(), FACTORS_DESCRIPTION),
-        (
-            layout.period_index.is_some(),
-            "period",
-            period_schema(),
-            PERIOD_DESCRIPTION,
-        ),
-    ];
-    for (slot, (wanted, stem, schema, description)) in plan.into_iter().enumerate() {
+    let mut paths_sink = None;
+    let mut paths_encoder = None;
+    if options.paths {
+        let path = options.file("paths");
+        let schema = paths_schema(central_rates);
         let layouts = column_layouts(&schema);
-        if wanted {
-            let path = options.file(stem);
-            let (sink, encoder) = RowGroupSink::create(
-                &path,
-                schema,
-                options.compression,
-                description,
-                &options.provenance,
-                &layouts,
-            )?;
-            sinks[slot] = Some(sink);
-            encoders[slot] = Some(encoder);
-            files.push(path);
-        }
+        let (sink, encoder) = RowGroupSink::create(
+            &path,
+            schema,
+            options.compression,
+            PATHS_DESCRIPTION,
+            &options.provenance,
+            &layouts,
+        )?;
+        paths_sink = Some(sink);
+        paths_encoder = Some(encoder);
+        files.push(path);
     }
+    let streamed = |stem: &str, schema: SchemaRef, description: &str| {
+        ParquetSink::create(
+            options.file(stem),
+            schema,
+            options.compression,
+            description,
+            &options.provenance,
+            STREAMED_ROWS_PER_GROUP,
+        )
+    };
+    let factors_schema = factors_schema();
+    let mut factors_sink = streamed("factors", factors_schema.clone(), FACTORS_DESCRIPTION)?;
+    files.push(options.file("factors"));
+    let period_schema = period_schema();
+    let mut period_sink = match layout.period_index {
+        Some(_) => {
+            files.push(options.file("period"));
+            Some(streamed(
+                "period",
+                period_schema.clone(),
+                PERIOD_DESCRIPTION,
+            )?)
+        }
+        None => None,
+    };
 
-    let per_scenario = basis.sexes().len() * projector.years().len() * ages.len();
-    let chunk = (options.row_group_rows / per_scenario.max(1)).max(1) as u64;
+    // A chunk is one row group of paths; without paths, a few hundred scenarios, enough
+    // to share out among the threads and few enough that the chunks in flight stay small.
+    let paths_per_scenario = basis.sexes().len() * projector.years().len() * ages.len();
+    let chunk = if options.paths {
+        (options.row_group_rows / paths_per_scenario.max(1)).max(1)
+    } else {
+        let figures = basis.sexes().len() * projector.years().len() * 2;
+        (options.row_group_rows / figures.max(1)).clamp(1, MAX_CHUNK_SCENARIOS)
+    } as u64;
     let chunks: Vec<Range<u64>> = (ids.start..ids.end)
         .step_by(chunk as usize)
         .map(|s| s..(s + chunk).min(ids.end))
@@ -480,20 +523,22 @@ pub fn write_projection(
         use rayon::prelude::*;
         batch
             .par_iter()
-            .map(|r| encode_chunk(projector, &layout, r.clone(), &encoders))
+            .map(|r| encode_chunk(projector, &layout, r.clone(), paths_encoder.as_deref()))
             .collect()
     };
     let mut path_rows = 0u64;
     let mut append_batch = |groups: Vec<ChunkGroups>, ranges: &[Range<u64>]| -> Result<()> {
         for (group, range) in groups.into_iter().zip(ranges) {
-            for (sink, encoded) in sinks.iter_mut().zip(group) {
-                if let (Some(sink), Some(encoded)) = (sink.as_mut(), encoded) {
-                    sink.append(encoded)?;
-                }
+            if let (Some(sink), Some(encoded)) = (paths_sink.as_mut(), group.paths) {
+                sink.append(encoded)?;
+            }
+            factors_sink.write(&record_batch(&factors_schema, group.factors, "factors")?)?;
+            if let (Some(sink), Some(period)) = (period_sink.as_mut(), group.period) {
+                sink.write(&record_batch(&period_schema, period, "period")?)?;
             }
             let n = range.end - range.start;
             if options.paths {
-                path_rows += n * per_scenario as u64;
+                path_rows += n * paths_per_scenario as u64;
             }
             progress(n);
         }
@@ -516,11 +561,14 @@ pub fn write_projection(
         append_batch(groups, r)?;
     }
 
-    let finished = sinks
-        .into_iter()
-        .flatten()
-        .map(RowGroupSink::close)
-        .collect::<Result<Vec<_>>>()?;
+    let mut finished = Vec::new();
+    if let Some(sink) = paths_sink {
+        finished.push(sink.close()?);
+    }
+    finished.push(factors_sink.close()?);
+    if let Some(sink) = period_sink {
+        finished.push(sink.close()?);
+    }
     if options.shard.is_none() {
         retire_stale_records(&options.folder, &options.provenance)?;
     }

@@ -22,7 +22,7 @@ use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use crate::data::config::Compression;
 use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
-use crate::io::parquet::{ParquetSink, SCHEMA_KEY};
+use crate::io::parquet::{ParquetSink, SCHEMA_KEY, STREAMED_ROWS_PER_GROUP};
 use crate::io::provenance::{RUN_ID_KEY, retire_stale_records};
 use crate::io::{AtomicFile, Provenance};
 use crate::pipeline::{ProjectedFits, ValuationOutcome, ValuationSetup, summarize};
@@ -193,7 +193,8 @@ pub fn concat_parts(
     each: &mut dyn FnMut(&RecordBatch) -> Result<()>,
 ) -> Result<AtomicFile> {
     let rows_per_group = match stem {
-        "paths" | "factors" | "period" => ROW_GROUP_ROWS,
+        "paths" => ROW_GROUP_ROWS,
+        "factors" | "period" => STREAMED_ROWS_PER_GROUP,
         _ => crate::valuation::files::rows_per_group(stem),
     };
     let mut sink: Option<ParquetSink> = None;

@@ -40,12 +40,19 @@ pub struct ScenarioResult {
 
 /// Scenario figures read off the rates besides the book's values: cells for the hedges
 /// and the report's fan charts, and period life expectancy at 65.
+///
+/// The hedges need their cells in every scenario; the charts draw only the first
+/// scenarios, so the rest skip those figures rather than compute and drop them.
 #[derive(Debug, Clone, Default)]
 pub struct Extracts {
     /// (sex, age, calendar year) cells whose q to keep.
     pub probes: Vec<(Sex, i32, i32)>,
+    /// How many of `probes`, the leading ones, every scenario reads.
+    pub every_scenario: usize,
     /// Keep period e°65 for every projected year and sex.
     pub period: bool,
+    /// Scenarios numbered below this read every probe and the period figures.
+    pub charts_end: u64,
 }
 
 /// What the driver does per scenario.
@@ -137,7 +144,13 @@ fn value_one(
 
 /// Reads the requested cells and period expectations off one scenario's rates.
 fn extract(paths: &ScenarioPaths, extracts: &Extracts, result: &mut ScenarioResult) -> Result<()> {
-    for &(sex, age, year) in &extracts.probes {
+    let charted = result.scenario < extracts.charts_end;
+    let read = if charted {
+        extracts.probes.len()
+    } else {
+        extracts.every_scenario.min(extracts.probes.len())
+    };
+    for &(sex, age, year) in &extracts.probes[..read] {
         let slot = paths.sexes().iter().position(|&s| s == sex);
         let q = slot.and_then(|i| paths.q(i, year, age)).ok_or_else(|| {
             Error::model(
@@ -147,7 +160,7 @@ fn extract(paths: &ScenarioPaths, extracts: &Extracts, result: &mut ScenarioResu
         })?;
         result.probes.push(q);
     }
-    if extracts.period {
+    if extracts.period && charted {
         let ages = paths.ages();
         if let Some(from) = ages.index(PERIOD_AGE) {
             for i in 0..paths.sexes().len() {

@@ -21,7 +21,7 @@ use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
-use crate::io::parquet::ParquetSink;
+use crate::io::parquet::{ParquetSink, STREAMED_ROWS_PER_GROUP};
 use crate::projection::OutputOptions;
 use crate::risk::order::Sample;
 use crate::valuation::driver::ScenarioResult;
@@ -38,13 +38,8 @@ const LIFETIMES_DESCRIPTION: &str = "scenario: scenario number; sex: F or M; age
     e_complete: E[min(T, n)]; e_curtate: E[min(K, n)]; annuity: n-year temporary annuity \
     on the valuation basis";
 
-/// Rows per row group of `cashflows` and `lifetimes`: 4,194,304 rows, 90–160 MB before
-/// compression, near the 128 MB row groups parquet-mr writes by default (from memory). The
-/// writer spills finished pages to disk (`io::spill`), so its memory does not depend on
-/// this; what does is the footer, one entry per column chunk kept until the file closes:
-/// a million scenarios of the 1,000-policy bench book make about 35 row groups, not the
-/// 1,100 that 2^17-row groups made.
-pub const ROWS_PER_GROUP: usize = 1 << 22;
+/// Rows per row group of `cashflows` and `lifetimes` (see [`STREAMED_ROWS_PER_GROUP`]).
+pub const ROWS_PER_GROUP: usize = STREAMED_ROWS_PER_GROUP;
 
 /// Rows per row group of `book.parquet`, one row a scenario: a million scenarios fit one
 /// group, and the summary reads it back a batch at a time.
