@@ -188,11 +188,11 @@ const PERIOD_DESCRIPTION: &str = "scenario: scenario number, 0 is the central pa
     sex: F or M; year: projected calendar year; \
     e65: period complete expectation of life at 65 from that year's rates, under UDD";
 
-/// Column layouts, chosen by measuring CBD runs of 2,000 and 3,000 scenarios (CPU time,
-/// zstd): dictionaries on the key columns cost a hash lookup per row, and delta
-/// bit-packing of the sorted integer keys costs more CPU than letting zstd squeeze their
-/// long runs from plain values (the file is the same size), so integer keys are plain;
-/// the sex and factor labels are length-delta strings (readable by pyarrow, unlike a
+/// Column layouts of `paths.parquet`, chosen by measuring CBD runs of 2,000 and 3,000
+/// scenarios (CPU time, zstd): dictionaries on the key columns cost a hash lookup per
+/// row, and delta bit-packing of the sorted integer keys costs more CPU than letting zstd
+/// squeeze their long runs from plain values (the file is the same size), so integer keys
+/// are plain; the sex label is a length-delta string (readable by pyarrow, unlike a
 /// dictionary-typed column without a dictionary page); byte-stream-split floats compress
 /// about 10 % smaller under zstd at no extra cost. Min/max statistics of the labels cost
 /// a string comparison per row and filter nothing (every row group holds every sex), so
