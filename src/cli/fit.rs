@@ -9,7 +9,7 @@ use std::io::Write;
 use std::path::PathBuf;
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, Int32Array, RecordBatch, StringArray};
+use arrow_array::{ArrayRef, Float64Array, Int32Array, StringArray};
 use arrow_schema::{DataType, Field, Schema};
 
 use crate::data::{Config, Experience, Population};
@@ -148,7 +148,7 @@ fn write_residuals(
     let schema = Arc::new(Schema::new(fields));
     let mut sink = ParquetSink::create(
         &path,
-        schema.clone(),
+        schema,
         config.output.compression,
         RESIDUALS_SCHEMA,
         provenance,
@@ -182,11 +182,7 @@ fn write_residuals(
             Arc::new(Int32Array::from(age_col)),
             Arc::new(Float64Array::from(value_col)),
         ]);
-        let batch = RecordBatch::try_new(schema.clone(), columns).map_err(|e| Error::Parquet {
-            path: path.clone(),
-            message: e.to_string(),
-        })?;
-        sink.write(&batch)?;
+        sink.write_columns(columns)?;
     }
     sink.close()
 }

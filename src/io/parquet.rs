@@ -54,6 +54,7 @@ pub const STREAMED_ROWS_PER_GROUP: usize = 1 << 22;
 /// A Parquet file being written batch by batch.
 pub struct ParquetSink {
     path: PathBuf,
+    schema: SchemaRef,
     writer: ArrowWriter<AtomicFile>,
     rows: usize,
 }
@@ -101,10 +102,11 @@ impl ParquetSink {
         let options = ArrowWriterOptions::new()
             .with_properties(props.build())
             .with_page_store_factory(Arc::new(SpillFactory::new(file.folder())));
-        let writer = ArrowWriter::try_new_with_options(file, schema, options)
+        let writer = ArrowWriter::try_new_with_options(file, Arc::clone(&schema), options)
             .map_err(|e| parquet_error(&path, e))?;
         Ok(ParquetSink {
             path,
+            schema,
             writer,
             rows: 0,
         })
@@ -118,6 +120,13 @@ impl ParquetSink {
             .map_err(|e| parquet_error(&self.path, e))?;
         self.rows += batch.num_rows();
         Ok(())
+    }
+
+    /// Appends one batch made of `columns`, one array per field of the file's schema.
+    pub fn write_columns(&mut self, columns: Vec<ArrayRef>) -> Result<()> {
+        let batch = RecordBatch::try_new(Arc::clone(&self.schema), columns)
+            .map_err(|e| parquet_error(&self.path, e))?;
+        self.write(&batch)
     }
 
     /// Rows written so far.

@@ -9,7 +9,7 @@ pub mod report;
 use std::ops::Range;
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, RecordBatch, StringArray, UInt32Array};
+use arrow_array::{ArrayRef, Float64Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema};
 
 use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
@@ -224,15 +224,17 @@ pub fn value_book(
     let (ids, report) = (ids.clone(), *report);
     // The hedges' table names every scenario.
     let keep_ids = hedges.is_some();
-    let sampler = match hedges {
-        Some(h) => Some(BookSampler::new(
-            h,
-            &DiscountCurve::from_config(config)?,
-            setup.prepared.years(),
+    let mut hedging = match hedges {
+        Some(h) => Some((
+            BookSampler::new(
+                h,
+                &DiscountCurve::from_config(config)?,
+                setup.prepared.years(),
+            ),
+            BookSample::default(),
         )),
         None => None,
     };
-    let mut sample = sampler.as_ref().map(|_| BookSample::default());
     let reference_cells = hedges.map_or(0, |h| ReferenceCells::of(h).cells.len());
     let settings = DriverSettings {
         seed: config.projection.seed,
@@ -260,7 +262,7 @@ pub fn value_book(
             files.write(chunk)?;
             for r in chunk {
                 if r.scenario == 0 {
-                    if let Some(sample) = &mut sample {
+                    if let Some((_, sample)) = &mut hedging {
                         sample.central = r.value.clone();
                     }
                     outcome.central = Some(r.value.clone());
@@ -303,7 +305,7 @@ pub fn value_book(
                         }
                     }
                 }
-                if let (Some(sampler), Some(sample)) = (&sampler, &mut sample) {
+                if let Some((sampler, sample)) = &mut hedging {
                     sampler.push(sample, outcome.stochastic - 1, &r.value)?;
                 }
             }
@@ -311,7 +313,7 @@ pub fn value_book(
             Ok(())
         },
     )?;
-    outcome.hedge_sample = sample;
+    outcome.hedge_sample = hedging.map(|(_, sample)| sample);
     let mut files = files.close()?;
     outcome.book = Some(WrittenBook::reopen(&mut files[0])?);
     Ok((outcome, files))
@@ -509,7 +511,7 @@ pub fn write_hedge_table(
     let path = config.output_folder().join("hedge.parquet");
     let mut sink = ParquetSink::create(
         &path,
-        schema.clone(),
+        schema,
         config.output.compression,
         HEDGE_DESCRIPTION,
         provenance,
@@ -541,12 +543,7 @@ pub fn write_hedge_table(
                 Arc::new(Float64Array::from(legs.floating_leg[start..end].to_vec())),
                 Arc::new(Float64Array::from(legs.net[start..end].to_vec())),
             ];
-            let batch =
-                RecordBatch::try_new(schema.clone(), columns).map_err(|e| Error::Parquet {
-                    path: path.clone(),
-                    message: e.to_string(),
-                })?;
-            sink.write(&batch)?;
+            sink.write_columns(columns)?;
         }
     }
     sink.close()

@@ -12,7 +12,7 @@ use std::path::PathBuf;
 use std::str::FromStr;
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array};
+use arrow_array::{ArrayRef, Float64Array, Int16Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::basic::Encoding;
 
@@ -291,13 +291,6 @@ struct Layout {
 /// Most scenarios a chunk holds when paths are not written.
 const MAX_CHUNK_SCENARIOS: usize = 256;
 
-fn record_batch(schema: &SchemaRef, columns: Vec<ArrayRef>, stem: &str) -> Result<RecordBatch> {
-    RecordBatch::try_new(Arc::clone(schema), columns).map_err(|e| Error::Parquet {
-        path: PathBuf::from(stem),
-        message: e.to_string(),
-    })
-}
-
 /// Generates scenarios `range`: one row group of paths (when written), and the columns of
 /// the factors and period figures.
 fn encode_chunk(
@@ -486,18 +479,12 @@ pub fn write_projection(
             STREAMED_ROWS_PER_GROUP,
         )
     };
-    let factors_schema = factors_schema();
-    let mut factors_sink = streamed("factors", factors_schema.clone(), FACTORS_DESCRIPTION)?;
+    let mut factors_sink = streamed("factors", factors_schema(), FACTORS_DESCRIPTION)?;
     files.push(options.file("factors"));
-    let period_schema = period_schema();
     let mut period_sink = match layout.period_index {
         Some(_) => {
             files.push(options.file("period"));
-            Some(streamed(
-                "period",
-                period_schema.clone(),
-                PERIOD_DESCRIPTION,
-            )?)
+            Some(streamed("period", period_schema(), PERIOD_DESCRIPTION)?)
         }
         None => None,
     };
@@ -532,9 +519,9 @@ pub fn write_projection(
             if let (Some(sink), Some(encoded)) = (paths_sink.as_mut(), group.paths) {
                 sink.append(encoded)?;
             }
-            factors_sink.write(&record_batch(&factors_schema, group.factors, "factors")?)?;
+            factors_sink.write_columns(group.factors)?;
             if let (Some(sink), Some(period)) = (period_sink.as_mut(), group.period) {
-                sink.write(&record_batch(&period_schema, period, "period")?)?;
+                sink.write_columns(period)?;
             }
             let n = range.end - range.start;
             if options.paths {

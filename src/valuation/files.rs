@@ -11,9 +11,7 @@ use std::fs::File;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
-use arrow_array::{
-    Array, ArrayRef, Float64Array, Int16Array, RecordBatch, StringArray, UInt32Array,
-};
+use arrow_array::{Array, Float64Array, Int16Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::arrow::ProjectionMask;
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
@@ -112,13 +110,6 @@ fn sink(
     )
 }
 
-fn batch(schema: &SchemaRef, columns: Vec<ArrayRef>, stem: &str) -> Result<RecordBatch> {
-    RecordBatch::try_new(Arc::clone(schema), columns).map_err(|e| Error::Parquet {
-        path: stem.into(),
-        message: e.to_string(),
-    })
-}
-
 fn simulated(value: f64) -> Option<f64> {
     (!value.is_nan()).then_some(value)
 }
@@ -154,20 +145,15 @@ impl ValuationFiles {
     /// Appends one chunk of results (in scenario order).
     pub fn write(&mut self, results: &[ScenarioResult]) -> Result<()> {
         let ids: Vec<u32> = results.iter().map(|r| r.scenario as u32).collect();
-        let schema = book_schema();
-        self.book.write(&batch(
-            &schema,
-            vec![
-                Arc::new(UInt32Array::from(ids)),
-                Arc::new(Float64Array::from_iter_values(
-                    results.iter().map(|r| r.value.pv_expected),
-                )),
-                Arc::new(Float64Array::from_iter(
-                    results.iter().map(|r| simulated(r.value.pv_simulated)),
-                )),
-            ],
-            "book",
-        )?)?;
+        self.book.write_columns(vec![
+            Arc::new(UInt32Array::from(ids)),
+            Arc::new(Float64Array::from_iter_values(
+                results.iter().map(|r| r.value.pv_expected),
+            )),
+            Arc::new(Float64Array::from_iter(
+                results.iter().map(|r| simulated(r.value.pv_simulated)),
+            )),
+        ])?;
 
         let (mut scenario, mut year, mut expected, mut sim) = (vec![], vec![], vec![], vec![]);
         for r in results {
@@ -178,17 +164,12 @@ impl ValuationFiles {
                 sim.push(r.value.cash_simulated.get(k).copied());
             }
         }
-        let schema = cashflows_schema();
-        self.cashflows.write(&batch(
-            &schema,
-            vec![
-                Arc::new(UInt32Array::from(scenario)),
-                Arc::new(Int16Array::from(year)),
-                Arc::new(Float64Array::from(expected)),
-                Arc::new(Float64Array::from(sim)),
-            ],
-            "cashflows",
-        )?)?;
+        self.cashflows.write_columns(vec![
+            Arc::new(UInt32Array::from(scenario)),
+            Arc::new(Int16Array::from(year)),
+            Arc::new(Float64Array::from(expected)),
+            Arc::new(Float64Array::from(sim)),
+        ])?;
 
         if let Some(sink) = self.lifetimes.as_mut() {
             let rows = results
@@ -205,20 +186,15 @@ impl ValuationFiles {
                 ek.push(l.e_curtate);
                 an.push(l.annuity);
             }
-            let schema = lifetimes_schema();
-            sink.write(&batch(
-                &schema,
-                vec![
-                    Arc::new(UInt32Array::from(s)),
-                    Arc::new(StringArray::from(sex)),
-                    Arc::new(Int16Array::from(age)),
-                    Arc::new(Int16Array::from(horizon)),
-                    Arc::new(Float64Array::from(ec)),
-                    Arc::new(Float64Array::from(ek)),
-                    Arc::new(Float64Array::from(an)),
-                ],
-                "lifetimes",
-            )?)?;
+            sink.write_columns(vec![
+                Arc::new(UInt32Array::from(s)),
+                Arc::new(StringArray::from(sex)),
+                Arc::new(Int16Array::from(age)),
+                Arc::new(Int16Array::from(horizon)),
+                Arc::new(Float64Array::from(ec)),
+                Arc::new(Float64Array::from(ek)),
+                Arc::new(Float64Array::from(an)),
+            ])?;
         }
         Ok(())
     }
