@@ -5,12 +5,11 @@
 use criterion::{Criterion, Throughput, criterion_group, criterion_main};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
-use tailspan::data::config::Timing;
-use tailspan::data::{Book, DiscountCurve, Policy, Sex};
+use tailspan::data::{Book, Policy, Sex};
+use tailspan::interest::{DiscountCurve, Timing};
 use tailspan::life::MortalityLaw;
-use tailspan::valuation::{
-    Basis, LevelAdjustment, PreparedBook, RateSurface, ScenarioValue, Workspace,
-};
+use tailspan::projection::RateSurface;
+use tailspan::valuation::{Basis, LevelAdjustment, PreparedBook, ScenarioValue, Workspace};
 
 const POLICIES: usize = 100_000;
 

@@ -5,8 +5,9 @@ use std::fmt::Write as _;
 use std::io::Write as _;
 use std::path::{Path, PathBuf};
 
-use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
+use crate::data::{Book, Config, Experience, Sex};
 use crate::error::{Error, Result};
+use crate::interest::DiscountCurve;
 
 /// Arguments of `tailspan check`.
 #[derive(Debug, clap::Args)]
@@ -124,8 +125,8 @@ fn write_summary(
         "valuation   year {}, payments in {}, {} a year",
         config.valuation_year(),
         match config.valuation.timing {
-            crate::data::config::Timing::Advance => "advance",
-            crate::data::config::Timing::Arrears => "arrears",
+            crate::interest::Timing::Advance => "advance",
+            crate::interest::Timing::Arrears => "arrears",
         },
         config.valuation.frequency
     )?;

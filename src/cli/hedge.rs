@@ -91,7 +91,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
 /// Prints each contract's price.
 pub fn print_hedges(hedges: &crate::hedge::HedgeResults) -> Result<()> {
     use crate::hedge::evaluate::ContractSummary;
-    let money = crate::io::report::format::amount;
+    let money = crate::report::format::amount;
     let mut text = String::new();
     for c in &hedges.summary.contracts {
         match c {

@@ -13,13 +13,13 @@ use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
-use crate::pipeline::report::{ReportInputs, fan_probes, report_data};
 use crate::pipeline::{
     LIFETIME_SCENARIOS_KEPT, ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, summarize,
     value_book, write_hedge_table,
 };
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{OutputOptions, scenario_ids, write_projection};
+use crate::report::gather::{ReportInputs, fan_probes, report_data};
 use crate::valuation::Extracts;
 
 /// Arguments of `tailspan run`.
@@ -71,7 +71,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?;
     if book.is_some() {
-        crate::data::DiscountCurve::from_config(&config)?;
+        crate::interest::DiscountCurve::from_config(&config)?;
     }
     stages.done("check");
 
@@ -167,7 +167,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         run_at,
     })?;
     let report = config.output_folder().join("report.html");
-    crate::io::report::write(&report, &data)?;
+    crate::report::write(&report, &data)?;
     stages.done("report");
 
     if let Some(summary) = &summary {

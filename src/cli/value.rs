@@ -96,7 +96,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
 /// Prints the headline figures.
 pub fn print_summary(summary: &RunSummary) -> Result<()> {
     let mut text = String::new();
-    let money = crate::io::report::format::amount;
+    let money = crate::report::format::amount;
     text.push_str(&format!(
         "best estimate (central path)       {:>18}\n",
         money(summary.best_estimate)

@@ -11,6 +11,8 @@ use serde::{Deserialize, Serialize};
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::hedge::HedgeConfig;
+pub use crate::interest::Timing;
+pub use crate::series::CohortSeriesKind;
 
 /// The whole configuration file.
 #[derive(Debug, Clone, Deserialize, Serialize)]
@@ -117,16 +119,6 @@ pub enum CohortLoading {
     Free,
     /// The common simplification b0_x = 1 at every age.
     Unit,
-}
-
-/// Time-series model of the cohort index γ_c over birth years c.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
-#[serde(rename_all = "kebab-case")]
-pub enum CohortSeriesKind {
-    /// ARIMA(1,1,0) with drift: Δγ_c = μ0 + φ Δγ_{c−1} + ε_c.
-    Arima110Drift,
-    /// AR(1) with a linear trend: γ_c = μ0 + μ1 τ_c + φ γ_{c−1} + ε_c.
-    Ar1Trend,
 }
 
 /// How a model's parameters are estimated.
@@ -244,16 +236,6 @@ pub struct ProjectionConfig {
     /// Bootstrap replicates (refits) shared by the scenarios; scenario s uses replicate s mod B.
     #[serde(default = "default_bootstrap_samples")]
     pub bootstrap_samples: usize,
-}
-
-/// Payment timing within each period.
-#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
-#[serde(rename_all = "kebab-case")]
-pub enum Timing {
-    /// Payments at the start of each period (annuity-due).
-    Advance,
-    /// Payments at the end of each period (annuity-immediate).
-    Arrears,
 }
 
 /// A mortality multiplier for a sex and an age band (the book's own level).

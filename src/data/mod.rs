@@ -1,4 +1,4 @@
-//! Inputs: the experience grid, the book, the config and the discount curve.
+//! Inputs: the experience grid, the book, the config and the spot-rate file.
 //!
 //! Everything a user hands in is loaded and validated here, once, so the rest of the
 //! crate can assume clean data. Every rejection names the file, row and column or the
@@ -14,7 +14,6 @@ pub mod span;
 
 pub use book::{Book, Policy};
 pub use config::Config;
-pub use curve::DiscountCurve;
 pub use experience::{Experience, Population};
 pub use sex::Sex;
 pub use span::Span;

@@ -44,3 +44,12 @@ impl FromStr for Sex {
         }
     }
 }
+
+/// Row of a sex in per-sex arrays.
+#[inline]
+pub fn sex_index(sex: Sex) -> usize {
+    match sex {
+        Sex::F => 0,
+        Sex::M => 1,
+    }
+}

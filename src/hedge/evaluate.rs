@@ -3,7 +3,7 @@
 
 use serde::Serialize;
 
-use crate::data::{DiscountCurve, Sex};
+use crate::data::Sex;
 use crate::error::{Error, Result};
 use crate::hedge::effectiveness::{Effectiveness, effectiveness};
 use crate::hedge::legs::{BookSample, Distribution, LegValues};
@@ -15,6 +15,7 @@ use crate::hedge::spec::{
     FloatingBasis, HedgeConfig, NotionalChoice, PremiumChoice, QForwardConfig, Side, SwapConfig,
 };
 use crate::hedge::swap::SwapTerms;
+use crate::interest::DiscountCurve;
 
 /// Column names of `hedge.parquet`, in order.
 pub const HEDGE_COLUMNS: [&str; 5] = ["scenario", "contract", "fixed_leg", "floating_leg", "net"];

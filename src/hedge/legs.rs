@@ -7,10 +7,10 @@
 
 use serde::Serialize;
 
-use crate::data::DiscountCurve;
 use crate::error::{Error, Result};
 use crate::hedge::spec::{FloatingBasis, HedgeConfig};
 use crate::hedge::swap::covered_years;
+use crate::interest::DiscountCurve;
 use crate::risk::capital::REPORTED_QUANTILES;
 use crate::risk::quantile::{quantile_sorted, sorted, summarize};
 use crate::valuation::ScenarioValue;

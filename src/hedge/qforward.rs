@@ -7,14 +7,15 @@
 //! risk). The payoff is settled at the end of the maturity year, once that year's rate is
 //! known.
 
-use crate::data::{DiscountCurve, Sex};
+use crate::data::Sex;
+use crate::data::sex::sex_index;
 use crate::error::{Error, Result};
 use crate::hedge::legs::LegValues;
 use crate::hedge::spec::HedgeConfig;
 use crate::hedge::spec::Side;
+use crate::interest::DiscountCurve;
+use crate::projection::RateSurface;
 use crate::risk::quantile::summarize;
-use crate::valuation::RateSurface;
-use crate::valuation::cohort::sex_index;
 
 /// The terms of one q-forward.
 #[derive(Debug, Clone, PartialEq)]

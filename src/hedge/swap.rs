@@ -5,12 +5,12 @@
 //! book and a side then only scale and shift them, so both pricing methods and every
 //! reported figure reuse one pass over the scenarios.
 
-use crate::data::DiscountCurve;
 use crate::error::{Error, Result};
 use crate::hedge::legs::{
     BookResults, BookSample, LegValues, floating_pv, settled_pv, settlement_discounts,
 };
 use crate::hedge::spec::{FloatingBasis, Side};
+use crate::interest::DiscountCurve;
 
 /// The terms of one swap.
 #[derive(Debug, Clone, PartialEq)]

@@ -1,4 +1,7 @@
-//! Output: atomic writers for JSON, CSV and Parquet, the report and its charts.
+//! Output: atomic writers for JSON, CSV and Parquet, provenance, spill files and hashes.
+//!
+//! Only writing lives here; what a file says is decided by the layers above (the report
+//! by `report/`).
 
 pub mod atomic;
 pub mod finite;
@@ -6,7 +9,6 @@ pub mod hash;
 pub mod memory;
 pub mod parquet;
 pub mod provenance;
-pub mod report;
 pub mod spill;
 
 pub use atomic::{AtomicFile, write_bytes, write_json};

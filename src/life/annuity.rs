@@ -30,50 +30,7 @@
 //! Valuing is allocation-free and linear in the number of payments.
 
 use super::fractional::Fractional;
-use crate::data::DiscountCurve;
-/// Advance (times d, d + 1/m, …) or arrears (d + 1/m, d + 2/m, …): the config's setting.
-pub use crate::data::config::Timing;
-
-/// A discount function v(t): the value now of 1 paid at time t years.
-pub trait Discount {
-    /// Discount factor for time `t` ≥ 0 in years.
-    fn discount(&self, t: f64) -> f64;
-}
-
-impl<F: Fn(f64) -> f64 + ?Sized> Discount for F {
-    fn discount(&self, t: f64) -> f64 {
-        self(t)
-    }
-}
-
-impl Discount for DiscountCurve {
-    fn discount(&self, t: f64) -> f64 {
-        DiscountCurve::discount(self, t)
-    }
-}
-
-/// A flat annual effective rate, with its force of interest computed once.
-#[derive(Debug, Clone, Copy, PartialEq)]
-pub struct FlatRate {
-    /// Force of interest δ = ln(1 + i).
-    force: f64,
-}
-
-impl FlatRate {
-    /// A flat annual effective rate `rate_pa` (0.05 is 5 %), which must exceed −1.
-    pub fn new(rate_pa: f64) -> Self {
-        FlatRate {
-            force: rate_pa.ln_1p(),
-        }
-    }
-}
-
-impl Discount for FlatRate {
-    #[inline]
-    fn discount(&self, t: f64) -> f64 {
-        (-self.force * t).exp()
-    }
-}
+pub use crate::interest::{Discount, FlatRate, Timing};
 
 /// The shape of a life annuity paying 1 a year; see the module docs for the conventions.
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -26,7 +26,7 @@ use crate::models::cohort::{CohortEffects, CohortGrid};
 use crate::models::glm::{self, Cell, Family};
 use crate::models::likelihood::measure_fit;
 use crate::models::{FitBasis, FittedModel, MortalityModel};
-use crate::projection::CohortSeries;
+use crate::series::CohortSeries;
 
 const NAME: &str = "apc";
 

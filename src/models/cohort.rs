@@ -8,12 +8,12 @@
 //! central projection of the cohort index's time series and the old end by holding the
 //! oldest estimated value (a time series has no backward projection worth the name).
 //! The projection draws the young end afresh in every scenario
-//! ([`crate::projection::cohort_paths`]); the central values filled here are scenario 0's.
+//! (`projection/cohort_paths.rs`); the central values filled here are scenario 0's.
 
 use crate::data::config::CohortSeriesKind;
 use crate::data::{Population, Span};
 use crate::error::{Error, Result};
-use crate::projection::CohortSeries;
+use crate::series::CohortSeries;
 
 /// The cohorts of an age × year grid and which of them are estimated.
 #[derive(Debug, Clone, PartialEq)]

@@ -17,9 +17,9 @@ use crate::models::{
     ApcParams, CbdCohortParams, CbdCohortVariant, CbdParams, FittedModel, LeeCarterMethod,
     LeeCarterParams, MortalityModel, RenshawHabermanParams,
 };
-use crate::projection::RandomWalk;
-use crate::projection::cohort_series::CohortSeriesSummary;
-use crate::projection::random_walk::RandomWalkSummary;
+use crate::series::RandomWalk;
+use crate::series::cohort_series::CohortSeriesSummary;
+use crate::series::random_walk::RandomWalkSummary;
 
 /// One fitted model with its period indices' random walk.
 pub struct ModelFit {

@@ -4,20 +4,19 @@
 //! model fitted to each sex, a projector over the joint basis — and must build them the same
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
-pub mod report;
-
 use std::ops::Range;
 use std::sync::Arc;
 
 use arrow_array::{ArrayRef, Float64Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema};
 
-use crate::data::{Book, Config, DiscountCurve, Experience, Sex};
+use crate::data::{Book, Config, Experience, Sex};
 use crate::error::{Error, Result};
 use crate::hedge::legs::{BookSample, BookSampler};
 use crate::hedge::qforward::{ReferenceCells, ReferenceRates};
 use crate::hedge::spec::HedgeConfig;
 use crate::hedge::{HedgeInputs, HedgeResults, evaluate};
+use crate::interest::DiscountCurve;
 use crate::io::AtomicFile;
 use crate::io::Provenance;
 use crate::io::hash::{InputHash, hash_file};
@@ -31,7 +30,6 @@ use crate::risk::one_year::{Recalibration, one_year_values};
 use crate::risk::order::{HELD, Streamed};
 use crate::risk::summary::{OneYearFigures, RunInfo, RunSummary};
 use crate::risk::{CapitalSummary, StressFigures};
-use crate::valuation::driver::surfaces;
 use crate::valuation::files::{ValuationFiles, WrittenBook};
 use crate::valuation::{
     Basis, DriverSettings, Extracts, LevelAdjustment, LifetimeTable, PreparedBook, ScenarioValue,
@@ -142,7 +140,7 @@ impl ValuationSetup {
         projector.generate(0, &mut paths)?;
         let mut ws = Workspace::default();
         self.prepared
-            .build_scaled_curves(&surfaces(&paths), scale, &mut ws)?;
+            .build_scaled_curves(&paths.surfaces(), scale, &mut ws)?;
         let mut value = ScenarioValue::default();
         self.prepared
             .value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);

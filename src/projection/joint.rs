@@ -11,7 +11,7 @@ use std::sync::Arc;
 use nalgebra::{DMatrix, DVector};
 
 use crate::projection::cohort_paths::CohortBasis;
-use crate::projection::random_walk::RandomWalk;
+use crate::series::random_walk::RandomWalk;
 
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};

@@ -1,8 +1,8 @@
-//! Scenario generation: time-series models of the period indices and random streams.
+//! Scenario generation: projected indices and rates, random streams and the rate surface.
 //!
 //! A scenario is a pure function of (seed, scenario number): the fitted models' stacked
 //! period indices are projected by one joint random walk with drift ([`joint`], estimated
-//! by [`random_walk`]), with optional parameter uncertainty ([`uncertainty`]), cohort
+//! by [`crate::series::random_walk`]), with optional parameter uncertainty ([`uncertainty`]), cohort
 //! models' younger cohorts drawn from their index's time series ([`cohort_paths`]), and
 //! mapped to rates by each model ([`scenarios`]). The [`engine`] runs scenarios in parallel and
 //! streams them to Parquet.
@@ -27,20 +27,18 @@
 //!   rates (the constant-force convention), for Lee–Carter and CBD alike.
 
 pub mod cohort_paths;
-pub mod cohort_series;
 pub mod engine;
 pub mod joint;
 pub mod period;
-pub mod random_walk;
 pub mod scenarios;
 pub mod streams;
+pub mod surface;
 pub mod uncertainty;
 
 pub use cohort_paths::{CohortBasis, CohortDraw, CohortPath};
-pub use cohort_series::{CohortSeries, SeriesTerms};
 pub use engine::{OutputOptions, Shard, Written, write_projection};
 pub use joint::JointBasis;
-pub use random_walk::RandomWalk;
 pub use scenarios::{Projector, ScenarioPaths, Settings, scenario_ids};
 pub use streams::{Purpose, stream};
+pub use surface::RateSurface;
 pub use uncertainty::{BootstrapSource, Uncertainty};

@@ -21,8 +21,8 @@ use crate::models::FittedModel;
 use crate::projection::cohort_paths::{CohortDraw, CohortPath};
 use crate::projection::joint::JointBasis;
 use crate::projection::streams::{Purpose, stream};
+use crate::projection::surface::RateSurface;
 use crate::projection::uncertainty::{BootstrapSource, Uncertainty, bootstrap_basis, drawn_drift};
-use crate::valuation::RateSurface;
 
 /// How scenarios are drawn.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -145,6 +145,15 @@ impl ScenarioPaths {
             ages: self.ages.len(),
             q: self.rates(sex_index),
         }
+    }
+
+    /// The rate surfaces by sex slot (F, M), as the valuation reads them.
+    pub fn surfaces(&self) -> [Option<RateSurface<'_>>; 2] {
+        let mut out = [None, None];
+        for (i, &sex) in self.sexes().iter().enumerate() {
+            out[crate::data::sex::sex_index(sex)] = Some(self.surface(i));
+        }
+        out
     }
 
     /// Projected indices of the sex at `sex_index` in projected year number `h` (1-based).

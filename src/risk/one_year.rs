@@ -20,10 +20,11 @@ use rand_distr::{Distribution, Poisson};
 use rayon::prelude::*;
 
 use crate::data::Population;
+use crate::data::sex::sex_index;
 use crate::error::{Error, Result};
 use crate::models::{FittedModel, MortalityModel};
+use crate::projection::RateSurface;
 use crate::projection::{JointBasis, Projector, Purpose, Settings, Uncertainty, stream};
-use crate::valuation::cohort::{RateSurface, sex_index};
 use crate::valuation::{PreparedBook, ScenarioValue, Workspace};
 
 /// What the re-calibration needs beyond the projector and the book.

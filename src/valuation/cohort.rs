@@ -5,45 +5,8 @@
 //! by every policy in it; the inner loop over policies never touches the rate surface.
 
 use crate::data::Sex;
-
-/// One scenario's projected one-year rates of one sex: calendar years × ages, row-major by
-/// year, every age from `first_age` to the model's `max_age`.
-#[derive(Debug, Clone, Copy)]
-pub struct RateSurface<'a> {
-    /// Calendar year of row 0.
-    pub first_year: i32,
-    /// Age of column 0.
-    pub first_age: i32,
-    /// Ages per row (`max_age − first_age + 1`).
-    pub ages: usize,
-    /// The rates.
-    pub q: &'a [f64],
-}
-
-impl RateSurface<'_> {
-    /// Number of calendar years held.
-    pub fn years(&self) -> usize {
-        self.q.len() / self.ages
-    }
-
-    /// Last age held (q is 1 there).
-    pub fn max_age(&self) -> i32 {
-        self.first_age + self.ages as i32 - 1
-    }
-
-    /// Last calendar year held.
-    pub fn last_year(&self) -> i32 {
-        self.first_year + self.years() as i32 - 1
-    }
-
-    /// q(age, year); both must be held.
-    #[inline]
-    pub fn q(&self, age: i32, year: i32) -> f64 {
-        let row = (year - self.first_year) as usize;
-        let col = (age - self.first_age) as usize;
-        self.q[row * self.ages + col]
-    }
-}
+use crate::data::sex::sex_index;
+use crate::projection::RateSurface;
 
 /// Lives of one sex aged `age` at the valuation date with one mortality multiplier.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -92,15 +55,6 @@ impl LevelAdjustment {
             .get((age - self.first_age) as usize)
             .copied()
             .unwrap_or(1.0)
-    }
-}
-
-/// Row of a sex in per-sex arrays.
-#[inline]
-pub fn sex_index(sex: Sex) -> usize {
-    match sex {
-        Sex::F => 0,
-        Sex::M => 1,
     }
 }
 

@@ -15,7 +15,6 @@ use crate::data::Sex;
 use crate::error::{Error, Result};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::{Projector, Purpose, ScenarioPaths, stream};
-use crate::valuation::cohort::{RateSurface, sex_index};
 use crate::valuation::lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 use crate::valuation::portfolio::{PreparedBook, ScenarioValue, Workspace};
 
@@ -70,15 +69,6 @@ struct Buffers {
     lifetimes: LifetimeWorkspace,
 }
 
-/// The rate surfaces of `paths` by sex slot (F, M).
-pub fn surfaces(paths: &ScenarioPaths) -> [Option<RateSurface<'_>>; 2] {
-    let mut out = [None, None];
-    for (i, &sex) in paths.sexes().iter().enumerate() {
-        out[sex_index(sex)] = Some(paths.surface(i));
-    }
-    out
-}
-
 /// Values `book` in scenarios `ids`, handing each chunk's results, in scenario order, to
 /// `sink`.
 pub fn value_scenarios(
@@ -124,7 +114,7 @@ fn value_one(
     scenario: u64,
 ) -> Result<ScenarioResult> {
     projector.generate(scenario, &mut buffers.paths)?;
-    let surfaces = surfaces(&buffers.paths);
+    let surfaces = buffers.paths.surfaces();
     book.build_curves(&surfaces, &mut buffers.book)?;
     let mut result = ScenarioResult {
         scenario,

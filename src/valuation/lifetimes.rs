@@ -7,11 +7,13 @@
 //! annuity is the whole-life one. The book's own mortality level by sex and age band
 //! applies; per-policy multipliers do not (they describe policies, not the cohort).
 
+use crate::data::sex::sex_index;
 use crate::data::{Book, Sex};
 use crate::error::Result;
 use crate::life::Fractional;
 use crate::life::table::{complete_expectation_n, curtate_expectation_n};
-use crate::valuation::cohort::{Cohort, LevelAdjustment, RateSurface, cohort_curve, sex_index};
+use crate::projection::RateSurface;
+use crate::valuation::cohort::{Cohort, LevelAdjustment, cohort_curve};
 use crate::valuation::schedule::{Basis, PaymentShape, Schedule};
 
 /// One row of `lifetimes.parquet` (the scenario number is added by the writer).

@@ -7,7 +7,7 @@ pub mod lifetimes;
 pub mod portfolio;
 pub mod schedule;
 
-pub use cohort::{Cohort, LevelAdjustment, RateSurface};
+pub use cohort::{Cohort, LevelAdjustment};
 pub use driver::{DriverSettings, Extracts, ScenarioResult, value_scenarios};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 pub use portfolio::{PreparedBook, ScenarioValue, Workspace};

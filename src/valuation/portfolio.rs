@@ -10,9 +10,11 @@ use std::collections::HashMap;
 
 use rand::Rng;
 
+use crate::data::sex::sex_index;
 use crate::data::{Book, Sex};
 use crate::error::{Error, Result};
-use crate::valuation::cohort::{Cohort, LevelAdjustment, RateSurface, cohort_curve, sex_index};
+use crate::projection::RateSurface;
+use crate::valuation::cohort::{Cohort, LevelAdjustment, cohort_curve};
 use crate::valuation::schedule::{Basis, PaymentShape, Schedule};
 
 /// log2 of the buckets of the guide table that starts each death-time search near its

@@ -9,8 +9,8 @@
 //! weighted by f. The same shape gives prefix sums over payments for the simulation of
 //! individual deaths, where a life dying at T receives exactly the payments due before T.
 
-use crate::data::config::Timing;
-use crate::data::{DiscountCurve, Policy};
+use crate::data::Policy;
+use crate::interest::{DiscountCurve, Timing};
 
 /// The valuation basis shared by every policy.
 #[derive(Debug, Clone, PartialEq)]

@@ -3,7 +3,8 @@
 
 use std::path::{Path, PathBuf};
 
-use tailspan::data::{Book, Config, DiscountCurve, Experience, Policy, Sex, Span};
+use tailspan::data::{Book, Config, Experience, Policy, Sex, Span};
+use tailspan::interest::DiscountCurve;
 use tailspan::{Error, synth};
 
 fn good(name: &str) -> PathBuf {

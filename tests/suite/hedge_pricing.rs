@@ -3,14 +3,16 @@
 
 use std::path::Path;
 
-use tailspan::data::{Config, DiscountCurve, Sex};
+use tailspan::data::{Config, Sex};
 use tailspan::hedge::{
     BookResults, ContractSummary, FloatingBasis, HEDGE_COLUMNS, HedgeInputs, QForwardTerms,
     ReferenceCells, ReferenceRates, Side, SwapTerms, cost_of_capital, effectiveness, evaluate,
     hedge_ratio, sharpe,
 };
+use tailspan::interest::DiscountCurve;
+use tailspan::projection::RateSurface;
 use tailspan::risk::quantile::summarize;
-use tailspan::valuation::{RateSurface, ScenarioValue};
+use tailspan::valuation::ScenarioValue;
 
 /// A scenario whose benefits are `cash` (trend only: no simulated deaths).
 fn scenario(cash: &[f64], pv: f64) -> ScenarioValue {

@@ -12,17 +12,16 @@ use std::sync::OnceLock;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution as _, StandardNormal};
-use tailspan::data::config::Timing;
-use tailspan::data::{Book, Config, DiscountCurve, Policy, Sex};
+use tailspan::data::{Book, Config, Policy, Sex};
 use tailspan::hedge::{
     BookResults, ContractSummary, HedgeInputs, HedgeResults, ReferenceCells, ReferenceRates,
     evaluate, hedged_pv, rate_at,
 };
+use tailspan::interest::{DiscountCurve, Timing};
 use tailspan::life::MortalityLaw;
+use tailspan::projection::RateSurface;
 use tailspan::risk::quantile::summarize;
-use tailspan::valuation::{
-    Basis, LevelAdjustment, PreparedBook, RateSurface, ScenarioValue, Workspace,
-};
+use tailspan::valuation::{Basis, LevelAdjustment, PreparedBook, ScenarioValue, Workspace};
 
 const FIRST_AGE: i32 = 60;
 const MAX_AGE: i32 = 110;

@@ -1,7 +1,7 @@
 //! Life-table functions and annuity factors against published tables, closed forms,
 //! a scipy quadrature fixture and the standard actuarial identities.
 
-use tailspan::data::DiscountCurve;
+use tailspan::interest::DiscountCurve;
 use tailspan::life::{
     Annuity, Discount, FlatRate, Fractional, MortalityLaw, annuity_due, annuity_immediate,
     complete_expectation, complete_expectation_n, curtate_expectation, curtate_expectation_n,

@@ -21,7 +21,7 @@ use rand_distr::{Binomial, Distribution, Normal, Poisson};
 use tailspan::data::config::{CohortLoading, CohortSeriesKind};
 use tailspan::data::{Population, Sex, Span};
 use tailspan::models::{CbdCohortVariant, CohortGrid};
-use tailspan::projection::CohortSeries;
+use tailspan::series::CohortSeries;
 
 fn stream(scenario: u64) -> ChaCha8Rng {
     let mut rng = ChaCha8Rng::seed_from_u64(20261202);

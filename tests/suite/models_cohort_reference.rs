@@ -11,7 +11,7 @@ use crate::models_support;
 use models_support::*;
 use tailspan::data::config::CohortSeriesKind;
 use tailspan::models::{CbdCohortVariant, FittedModel};
-use tailspan::projection::CohortSeries;
+use tailspan::series::CohortSeries;
 
 fn close(label: &str, ours: &[f64], theirs: &serde_json::Value, tolerance: f64) {
     let theirs = numbers(theirs);

@@ -16,7 +16,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Binomial, Distribution, Poisson};
 use tailspan::data::{Population, Sex, Span};
 use tailspan::models::{FittedModel, LeeCarterMethod};
-use tailspan::projection::RandomWalk;
+use tailspan::series::RandomWalk;
 
 fn stream(scenario: u64) -> ChaCha8Rng {
     let mut rng = ChaCha8Rng::seed_from_u64(20261202);

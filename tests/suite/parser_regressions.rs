@@ -64,7 +64,7 @@ fn an_absurd_curve_term_is_refused() {
     ] {
         let path = dir.path().join("curve.csv");
         std::fs::write(&path, format!("term,rate\n1,0.02\n{term},0.02033\n")).unwrap();
-        let err = tailspan::data::DiscountCurve::load(&path)
+        let err = tailspan::interest::DiscountCurve::load(&path)
             .expect_err(term)
             .to_string();
         assert!(err.contains("row 3, column `term`"), "{term}: {err}");

@@ -30,9 +30,9 @@ use tailspan::data::Sex;
 use tailspan::data::config::{CohortSeriesKind, Compression};
 use tailspan::models::{CohortEffects, FittedModel};
 use tailspan::projection::{
-    CohortSeries, OutputOptions, Projector, Settings, Shard, Uncertainty, scenario_ids,
-    write_projection,
+    OutputOptions, Projector, Settings, Shard, Uncertainty, scenario_ids, write_projection,
 };
+use tailspan::series::CohortSeries;
 
 use projection_support::{
     AGES, COHORTS, ESTIMATED, FakeLogRate, LEFT_OUT, YEARS, basis, cohort_pair, histories,

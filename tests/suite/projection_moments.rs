@@ -222,7 +222,7 @@ fn joint_estimator_cross_covariance_by_hand() {
     // variances are 1 and the covariance is 1/2 (hand computation of the usual
     // estimators); the Cholesky factor of [[1, ½], [½, 1]] has L21 = ½, L22 = √3/2.
     let h = nalgebra::DMatrix::from_row_slice(2, 4, &[0.0, 1.0, 4.0, 6.0, 5.0, 4.0, 4.0, 2.0]);
-    let w = tailspan::projection::RandomWalk::estimate(&h).unwrap();
+    let w = tailspan::series::RandomWalk::estimate(&h).unwrap();
     assert_eq!(w.steps, 3);
     assert!((w.drift[0] - 2.0).abs() < 1e-15 && (w.drift[1] + 1.0).abs() < 1e-15);
     assert!((w.covariance[(0, 0)] - 1.0).abs() < 1e-15);

@@ -8,12 +8,13 @@
 use proptest::prelude::*;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use tailspan::data::config::Timing;
-use tailspan::data::{Book, DiscountCurve, Policy, Sex};
+use tailspan::data::{Book, Policy, Sex};
+use tailspan::interest::{DiscountCurve, Timing};
 use tailspan::life::Fractional;
+use tailspan::projection::RateSurface;
 use tailspan::valuation::{
-    Basis, LevelAdjustment, LifetimeTable, LifetimeWorkspace, PreparedBook, RateSurface,
-    ScenarioValue, Workspace,
+    Basis, LevelAdjustment, LifetimeTable, LifetimeWorkspace, PreparedBook, ScenarioValue,
+    Workspace,
 };
 
 const FIRST_AGE: i32 = 60;

@@ -5,7 +5,7 @@
 //! from the `hmtx` table of Debian's fonts-dejavu-core DejaVuSans.ttf). Digits dominate
 //! tick labels; commas and points (651 units) are narrower.
 
-use tailspan::io::report::{self, ReportData};
+use tailspan::report::{self, ReportData};
 
 const EM_PER_CHAR: f64 = 0.64;
 

@@ -3,9 +3,7 @@
 
 use tailspan::Error;
 use tailspan::data::Sex;
-use tailspan::io::report::{
-    self, CapitalColumn, CapitalTable, HedgeRow, ReportData, StandardFormula,
-};
+use tailspan::report::{self, CapitalColumn, CapitalTable, HedgeRow, ReportData, StandardFormula};
 
 fn parse(html: &str) -> roxmltree::Document<'_> {
     let options = roxmltree::ParsingOptions {

@@ -2,12 +2,11 @@
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
-use tailspan::data::config::Timing;
-use tailspan::data::{Book, DiscountCurve, Policy, Sex};
+use tailspan::data::{Book, Policy, Sex};
+use tailspan::interest::{DiscountCurve, Timing};
 use tailspan::life::MortalityLaw;
-use tailspan::valuation::{
-    Basis, LevelAdjustment, PreparedBook, RateSurface, ScenarioValue, Workspace,
-};
+use tailspan::projection::RateSurface;
+use tailspan::valuation::{Basis, LevelAdjustment, PreparedBook, ScenarioValue, Workspace};
 
 const FIRST_AGE: i32 = 20;
 const MAX_AGE: i32 = 120;

@@ -1,9 +1,10 @@
 //! Truncated lifetimes per cohort against closed forms and published values.
 
-use tailspan::data::config::Timing;
-use tailspan::data::{Book, DiscountCurve, Policy, Sex};
+use tailspan::data::{Book, Policy, Sex};
+use tailspan::interest::{DiscountCurve, Timing};
 use tailspan::life::{Fractional, MortalityLaw};
-use tailspan::valuation::{Basis, LevelAdjustment, LifetimeTable, LifetimeWorkspace, RateSurface};
+use tailspan::projection::RateSurface;
+use tailspan::valuation::{Basis, LevelAdjustment, LifetimeTable, LifetimeWorkspace};
 
 const FIRST_AGE: i32 = 20;
 const MAX_AGE: i32 = 120;

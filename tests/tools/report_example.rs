@@ -9,7 +9,7 @@ fn main() -> ExitCode {
     let path = std::env::args_os()
         .nth(1)
         .unwrap_or_else(|| "target/report-example.html".into());
-    match tailspan::io::report::write(&path, &tailspan::io::report::ReportData::example()) {
+    match tailspan::report::write(&path, &tailspan::report::ReportData::example()) {
         Ok(()) => {
             println!("{}", std::path::Path::new(&path).display());
             ExitCode::SUCCESS

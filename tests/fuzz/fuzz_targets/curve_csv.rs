@@ -5,7 +5,7 @@
 use std::path::Path;
 
 use libfuzzer_sys::fuzz_target;
-use tailspan::data::DiscountCurve;
+use tailspan::interest::DiscountCurve;
 use tailspan_fuzz::{CSV_NAME, assert_csv_error, assert_curve};
 
 fuzz_target!(|bytes: &[u8]| {

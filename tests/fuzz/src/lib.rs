@@ -10,8 +10,9 @@ use std::path::Path;
 use tailspan::data::book::{MAX_ESCALATION, MAX_MORTALITY_FACTOR};
 use tailspan::data::config::Config;
 use tailspan::data::csv_input::MAX_AGE;
-use tailspan::data::curve::{MAX_RATE, MAX_TERM};
-use tailspan::data::{Book, DiscountCurve, Experience, Sex, Span};
+use tailspan::interest::curve::{MAX_RATE, MAX_TERM};
+use tailspan::data::{Book, Experience, Sex, Span};
+use tailspan::interest::DiscountCurve;
 use tailspan::error::Error;
 use tailspan::hedge::{NotionalChoice, PremiumChoice};
 

@@ -12,7 +12,7 @@ use tailspan::data::config::CohortSeriesKind;
 use tailspan::data::{Population, Sex, Span};
 use tailspan::life::closure::KannistoClosure;
 use tailspan::models::{CohortEffects, FitBasis, FitDiagnostics, FittedModel, MortalityModel};
-use tailspan::projection::CohortSeries;
+use tailspan::series::CohortSeries;
 
 /// The data window of a fake fit, with zero diagnostics and residuals. The fakes close
 /// their own rates, so the closure only carries `max_age`.

@@ -20,10 +20,19 @@
 //! cohorts' γ explode.
 
 use nalgebra::{Matrix3, Vector3};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
-use crate::data::config::CohortSeriesKind;
 use crate::error::{Error, Result};
+
+/// Time-series model of the cohort index γ_c over birth years c.
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum CohortSeriesKind {
+    /// ARIMA(1,1,0) with drift: Δγ_c = μ0 + φ Δγ_{c−1} + ε_c.
+    Arima110Drift,
+    /// AR(1) with a linear trend: γ_c = μ0 + μ1 τ_c + φ γ_{c−1} + ε_c.
+    Ar1Trend,
+}
 
 /// A fitted cohort-index time series, ready to project forward.
 #[derive(Debug, Clone, PartialEq)]

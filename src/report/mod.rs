@@ -1,13 +1,16 @@
 //! `report.html`: the page a risk committee reads.
 //!
-//! The report is drawn from [`ReportData`], plain numbers and strings, so the pipeline
-//! fills it in one call and the renderer never touches models or scenario files. Sections
-//! whose data is absent are left out rather than drawn empty.
+//! The report reads a run's results and nothing else: [`gather`] takes them from the same
+//! values that go to `summary.json` and the Parquet files into [`ReportData`], plain
+//! numbers and strings, and [`html`] and [`charts`] draw the page from that alone, never
+//! touching models or scenario files. Sections whose data is absent are left out rather
+//! than drawn empty. Writing the page is the atomic writer's job ([`crate::io`]).
 
 pub mod charts;
 pub mod data;
 mod example;
 pub mod format;
+pub mod gather;
 pub mod html;
 
 use std::path::Path;

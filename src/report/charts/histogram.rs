@@ -13,8 +13,8 @@ use super::{
 };
 use crate::data::Sex;
 use crate::error::Result;
-use crate::io::report::data::{LifetimeDistribution, PvDistribution};
-use crate::io::report::format;
+use crate::report::data::{LifetimeDistribution, PvDistribution};
+use crate::report::format;
 
 const HEIGHT: u32 = 340;
 const Y_DESC: &str = "Probability (share of scenarios in bin)";

@@ -7,17 +7,17 @@ use crate::data::{Config, Experience, Sex};
 use crate::error::Result;
 use crate::hedge::HedgeResults;
 use crate::hedge::evaluate::ContractSummary;
-use crate::io::report::charts::histogram::Bins;
-use crate::io::report::{
-    BasisItem, CapitalColumn, CapitalTable, FAN_PROBABILITIES, FanChart, FanMeasure, FanPoint,
-    FitRow, HedgeRow, InputFile, LifetimeDistribution, PvDistribution, ReportData, ResidualMap,
-    RunInfo, StandardFormula, YearValue,
-};
 use crate::life::closure::KannistoClosure;
 use crate::models::FitSet;
 use crate::pipeline::ValuationOutcome;
 use crate::projection::Projector;
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
+use crate::report::charts::histogram::Bins;
+use crate::report::{
+    BasisItem, CapitalColumn, CapitalTable, FAN_PROBABILITIES, FanChart, FanMeasure, FanPoint,
+    FitRow, HedgeRow, InputFile, LifetimeDistribution, PvDistribution, ReportData, ResidualMap,
+    RunInfo, StandardFormula, YearValue,
+};
 use crate::risk::order::Sample;
 use crate::risk::quantile::{quantile_sorted, sorted};
 use crate::risk::summary::RunSummary;

@@ -11,8 +11,8 @@ use super::{
     legend_height, linear_ticks, max_ticks, padded, palette, svg,
 };
 use crate::error::Result;
-use crate::io::report::data::{FanChart, FanMeasure, FanPoint};
-use crate::io::report::format;
+use crate::report::data::{FanChart, FanMeasure, FanPoint};
+use crate::report::format;
 
 const HEIGHT: u32 = 350;
 /// Band tints: Okabe–Ito blue mixed with white at 20 %, 40 % and 65 %.

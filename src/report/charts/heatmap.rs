@@ -8,8 +8,8 @@ use plotters::prelude::*;
 
 use super::{axis_style, draw_error, label_style, max_ticks, palette, svg};
 use crate::error::{Error, Result};
-use crate::io::report::data::ResidualMap;
-use crate::io::report::format;
+use crate::report::data::ResidualMap;
+use crate::report::format;
 
 const HEIGHT: u32 = 420;
 const LEGEND_WIDTH: u32 = 130;

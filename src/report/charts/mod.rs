@@ -18,7 +18,7 @@ use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 
 use crate::error::{Error, Result};
-use crate::io::report::format;
+use crate::report::format;
 
 /// Width of every chart in SVG pixels; the page scales it down to fit.
 pub const WIDTH: u32 = 720;
@@ -207,7 +207,7 @@ where
 
 /// Inserts `<title>` as the first child of the `<svg>` element and marks it as an image.
 fn with_title(svg: &str, title: &str) -> String {
-    let escaped = crate::io::report::html::escape(title);
+    let escaped = crate::report::html::escape(title);
     match svg.find('>') {
         Some(end) if svg.starts_with("<svg") => format!(
             "{} role=\"img\"><title>{}</title>{}",

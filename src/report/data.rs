@@ -10,9 +10,9 @@
 use serde::Serialize;
 
 use crate::data::Sex;
-use crate::io::report::charts::finite_range;
-use crate::io::report::charts::histogram::Bins;
 use crate::models::FitDiagnostics;
+use crate::report::charts::finite_range;
+use crate::report::charts::histogram::Bins;
 use crate::risk::capital::CapitalSummary;
 
 /// Everything `report.html` shows; every section is optional.
