@@ -27,6 +27,7 @@ pub mod error;
 pub mod hedge;
 pub mod interest;
 pub mod io;
+pub mod layouts;
 pub mod life;
 pub mod models;
 pub mod pipeline;

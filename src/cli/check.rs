@@ -5,9 +5,11 @@ use std::fmt::Write as _;
 use std::io::Write as _;
 use std::path::{Path, PathBuf};
 
+use crate::data::published::PublishedTable;
 use crate::data::{Book, Config, Experience, Sex};
 use crate::error::{Error, Result};
 use crate::interest::DiscountCurve;
+use crate::pipeline::inputs::{CheckedInputs, checked_inputs};
 
 /// Arguments of `tailspan check`.
 #[derive(Debug, clap::Args)]
@@ -29,18 +31,33 @@ pub fn run(args: &CheckArgs) -> Result<()> {
 /// Writes nothing.
 pub fn summary(path: &Path) -> Result<String> {
     let config = Config::load(path)?;
-    let experience = Experience::from_config(&config)?;
-    let book = Book::from_config(&config)?;
-    let curve =
-        if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
-            Some(DiscountCurve::from_config(&config)?)
-        } else {
-            None
-        };
+    let CheckedInputs {
+        experience,
+        book,
+        curve,
+    } = checked_inputs(&config)?;
 
     let mut s = String::new();
     // Writing to a String cannot fail.
     let _ = write_summary(&mut s, &config, &experience, book.as_ref(), curve.as_ref());
+    let published = published_summary(&config)?;
+    if let Some(at) = s.find("\nbook") {
+        s.insert_str(at + 1, &published);
+    }
+    Ok(s)
+}
+
+/// What was read from published deaths and exposures tables, one line each.
+fn published_summary(config: &Config) -> Result<String> {
+    let mut s = String::new();
+    for (role, path) in config.experience_inputs() {
+        if role == "experience" {
+            continue;
+        }
+        let table = PublishedTable::load(&path)?;
+        let _ = writeln!(s, "{role:<11} {}", path.display());
+        let _ = writeln!(s, "  read      {}", table.describe());
+    }
     Ok(s)
 }
 

@@ -35,14 +35,11 @@ pub fn run(args: &FitArgs, _quiet: bool) -> Result<()> {
     print_table(&fits)
 }
 
-/// The experience the config names, restricted to its sexes, ages and years.
+/// The experience the config names, restricted to its sexes, ages and years, after the
+/// model settings are checked.
 fn load_experience(config: &Config) -> Result<Experience> {
-    Experience::load(
-        &config.resolve(&config.data.experience),
-        config.ages(),
-        config.years(),
-        &config.data.sexes,
-    )
+    crate::pipeline::inputs::check_models(config)?;
+    Experience::from_config(config)
 }
 
 /// Fits every configured kind to every configured sex of `experience` and writes

@@ -4,11 +4,12 @@ use std::io::Write as _;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::data::{Book, Config, Experience};
+use crate::data::Config;
 use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::{Recorded, retire_stale_records};
 use crate::io::write_json;
+use crate::pipeline::inputs::checked_inputs;
 use crate::pipeline::{
     ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, value_book, write_hedge_table,
 };
@@ -35,8 +36,9 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
         )
     })?;
     let provenance = crate::pipeline::provenance(&config)?;
-    let experience = Experience::from_config(&config)?;
-    let book = Book::from_config(&config)?.ok_or_else(|| {
+    let inputs = checked_inputs(&config)?;
+    let experience = inputs.experience;
+    let book = inputs.book.ok_or_else(|| {
         Error::config(
             &config.file,
             "data.book",

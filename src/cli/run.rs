@@ -8,11 +8,12 @@ use crate::cli::fit::fit_and_write;
 use crate::cli::hedge::print_hedges;
 use crate::cli::progress::Progress;
 use crate::cli::value::print_summary;
-use crate::data::{Book, Config, Experience};
+use crate::data::Config;
 use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
+use crate::pipeline::inputs::checked_inputs;
 use crate::pipeline::{
     LIFETIME_SCENARIOS_KEPT, ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, summarize,
     value_book, write_hedge_table,
@@ -68,11 +69,8 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut stages = Stages::new(verbose);
     let config = Config::load(&args.config)?;
     let provenance = crate::pipeline::provenance(&config)?;
-    let experience = Experience::from_config(&config)?;
-    let book = Book::from_config(&config)?;
-    if book.is_some() {
-        crate::interest::DiscountCurve::from_config(&config)?;
-    }
+    let inputs = checked_inputs(&config)?;
+    let (experience, book) = (inputs.experience, inputs.book);
     stages.done("check");
 
     let fit_set = fit_and_write(&config, &provenance, &experience)?;

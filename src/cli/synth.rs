@@ -18,9 +18,18 @@ pub struct SynthArgs {
     /// Number of policies in the book.
     #[arg(long, default_value_t = synth::DEFAULT_POLICIES)]
     pub policies: usize,
+    /// Also write the demo in the other input layouts: a book with dates of birth
+    /// (`book-dates.csv`), published tables (`deaths.txt`, `exposures.txt`) and
+    /// spreadsheets (`book.xlsx`, `experience.xlsx`).
+    #[arg(long)]
+    pub formats: bool,
 }
 
 /// Runs `tailspan synth`: writes the invented experience and book into `--out`.
 pub fn run(args: &SynthArgs) -> Result<()> {
-    synth::write(&args.out, args.seed, args.policies)
+    synth::write(&args.out, args.seed, args.policies)?;
+    if args.formats {
+        crate::layouts::write_demo(&args.out, args.seed, args.policies)?;
+    }
+    Ok(())
 }

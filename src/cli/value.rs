@@ -4,10 +4,11 @@ use std::io::Write as _;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::data::{Book, Config, Experience};
+use crate::data::Config;
 use crate::error::{Error, Result};
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
+use crate::pipeline::inputs::checked_inputs;
 use crate::pipeline::{ProjectedFits, ValuationSetup, ValueRequest, summarize, value_book};
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::projection::{OutputOptions, Shard, scenario_ids};
@@ -33,8 +34,9 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     let shard: Option<Shard> = args.shard.as_deref().map(str::parse).transpose()?;
     let config = Config::load(&args.config)?;
     let provenance = crate::pipeline::provenance(&config)?;
-    let experience = Experience::from_config(&config)?;
-    let book = Book::from_config(&config)?.ok_or_else(|| {
+    let inputs = checked_inputs(&config)?;
+    let experience = inputs.experience;
+    let book = inputs.book.ok_or_else(|| {
         Error::config(
             &config.file,
             "data.book",

@@ -12,7 +12,11 @@ use std::collections::HashMap;
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
+use chrono::NaiveDate;
+
+use crate::data::coverage::{ProjectedRange, check_book_coverage};
 use crate::data::csv_input::{self, MAX_AGE, Row, Table};
+use crate::data::dates::{AgeBasis, age_on, deferral_years, parse_date};
 use crate::data::{Config, Sex};
 use crate::error::{Error, Result};
 
@@ -28,6 +32,33 @@ pub const BOOK_OPTIONAL: [&str; 6] = [
     "weight",
     "mortality_factor",
 ];
+
+/// Columns a book must have when read: `age` may be given as `birth_date` instead.
+const READ_REQUIRED: [&str; 3] = ["id", "sex", "amount"];
+
+/// Columns a book may have when read, besides [`READ_REQUIRED`].
+const READ_OPTIONAL: [&str; 9] = [
+    "age",
+    "birth_date",
+    "deferral",
+    "start_date",
+    "term",
+    "guarantee",
+    "escalation",
+    "weight",
+    "mortality_factor",
+];
+
+/// The date a book's `birth_date` and `start_date` are read at, and how.
+#[derive(Debug, Clone, Default)]
+pub struct BookDates {
+    /// `valuation.date`; a book with dates needs it.
+    pub valuation_date: Option<NaiveDate>,
+    /// `valuation.age_basis`.
+    pub age_basis: AgeBasis,
+    /// The config, named when `valuation.date` is missing.
+    pub config_file: PathBuf,
+}
 
 /// Largest mortality factor accepted (the same bound as the config's factors).
 pub const MAX_MORTALITY_FACTOR: f64 = 10.0;
@@ -95,22 +126,60 @@ impl Book {
     /// a guarantee longer than the term, a first payment beyond age 130, escalation outside
     /// ±25 % (3 meaning 3 % gets a hint), weights or mortality factors that are not
     /// positive (or mortality factors above 10), an empty book, and unknown columns.
+    /// A spreadsheet path (`.xlsx`, `.ods`, optionally `#sheet`) is read from its sheet.
     pub fn load(path: &Path) -> Result<Book> {
-        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-        Book::from_reader(path, file)
+        let table = Table::read(path, &READ_REQUIRED, &READ_OPTIONAL)?;
+        Book::from_table(&table, &BookDates::default())
     }
 
     /// As [`Book::load`] on any reader; `path` names the input in messages and is kept as
     /// [`Book::source`].
     pub fn from_reader(path: &Path, reader: impl Read) -> Result<Book> {
-        let table = Table::from_reader(reader, path, &BOOK_REQUIRED, &BOOK_OPTIONAL)?;
+        let table = Table::from_reader(reader, path, &READ_REQUIRED, &READ_OPTIONAL)?;
+        Book::from_table(&table, &BookDates::default())
+    }
+
+    /// Checks and reads the policies of a table already parsed with the book's columns;
+    /// `birth_date` and `start_date` are read as at `dates`.
+    pub fn from_table(table: &Table, dates: &BookDates) -> Result<Book> {
+        if table.has("age") == table.has("birth_date") {
+            let rule = if table.has("age") {
+                "give `age` or `birth_date`, not both".to_string()
+            } else {
+                format!(
+                    "missing column `age` (or `birth_date`); the header must name `{}`",
+                    BOOK_REQUIRED.join(",")
+                )
+            };
+            return Err(table.header_error(rule));
+        }
+        if table.has("deferral") && table.has("start_date") {
+            return Err(table.header_error("give `deferral` or `start_date`, not both"));
+        }
+        let valuation_date = if table.has("birth_date") || table.has("start_date") {
+            Some(dates.valuation_date.ok_or_else(|| {
+                let rule = format!(
+                    "{} gives dates (`birth_date` or `start_date`): set `valuation.date` (YYYY-MM-DD) to read them at",
+                    table.file.display()
+                );
+                // Read without a config, the book itself is named.
+                if dates.config_file.as_os_str().is_empty() {
+                    table.file_error(rule)
+                } else {
+                    Error::config(&dates.config_file, "valuation.date", rule)
+                }
+            })?)
+        } else {
+            None
+        };
         if table.is_empty() {
             return Err(table.file_error("empty book: no policies after the header"));
         }
         let mut policies = Vec::with_capacity(table.len());
         let mut ids: HashMap<String, usize> = HashMap::with_capacity(table.len());
         for row in table.rows() {
-            let policy = read_policy(&row)?;
+            let dated = valuation_date.map(|date| (date, dates.age_basis));
+            let policy = read_policy(&row, dated)?;
             if let Some(first) = ids.insert(policy.id.clone(), row.line) {
                 return Err(row.error(
                     "id",
@@ -120,7 +189,7 @@ impl Book {
             policies.push(policy);
         }
         Ok(Book {
-            source: path.to_path_buf(),
+            source: table.file.clone(),
             policies,
         })
     }
@@ -131,13 +200,21 @@ impl Book {
         let Some(path) = &config.data.book else {
             return Ok(None);
         };
-        let book = Book::load(&config.resolve(path))?;
+        let dates = BookDates {
+            valuation_date: config.valuation_date(),
+            age_basis: config.valuation.age_basis,
+            config_file: config.file.clone(),
+        };
+        let path = config.resolve(path);
+        let table = Table::read(&path, &READ_REQUIRED, &READ_OPTIONAL)?;
+        let book = Book::from_table(&table, &dates)?;
         book.check_window(config)?;
         Ok(Some(book))
     }
 
-    /// Checks every policy is of a fitted sex and no younger than the first fitted age:
-    /// projected rates start there, so a younger life could not be valued.
+    /// Checks every policy is of a fitted sex and no younger than the first fitted age
+    /// (projected rates start there, so a younger life could not be valued), and that the
+    /// projection covers the book ([`check_book_coverage`]).
     pub fn check_window(&self, config: &Config) -> Result<()> {
         let first_age = config.ages().first;
         for p in &self.policies {
@@ -166,7 +243,7 @@ impl Book {
                 ));
             }
         }
-        Ok(())
+        check_book_coverage(self, &ProjectedRange::of_config(config), &config.file)
     }
 
     /// Writes the book as CSV with every column (an empty `term` is whole life) to `path`
@@ -218,17 +295,30 @@ impl Book {
     }
 }
 
-/// Reads and checks one policy row.
-fn read_policy(row: &Row<'_>) -> Result<Policy> {
+/// Reads and checks one policy row; dates are read as at `dated` (valuation date, basis).
+fn read_policy(row: &Row<'_>, dated: Option<(NaiveDate, AgeBasis)>) -> Result<Policy> {
     let id = row.required("id")?.to_string();
     let sex: Sex = row
         .required("sex")?
         .parse()
         .map_err(|rule: String| row.error("sex", rule))?;
-    let age = row.whole("age")?;
+    let (age, age_column) = match dated {
+        Some((valuation, basis)) if row.has("birth_date") => {
+            let text = row.required("birth_date")?;
+            let birth = parse_date(text).map_err(|rule| row.error("birth_date", rule))?;
+            if birth > valuation {
+                return Err(row.error(
+                    "birth_date",
+                    format!("{birth} is after the valuation date {valuation} (`valuation.date`)"),
+                ));
+            }
+            (i64::from(age_on(birth, valuation, basis)), "birth_date")
+        }
+        _ => (row.whole("age")?, "age"),
+    };
     if !(0..=MAX_AGE as i64).contains(&age) {
         return Err(row.error(
-            "age",
+            age_column,
             format!("{age} is impossible: ages last birthday run from 0 to {MAX_AGE}"),
         ));
     }
@@ -240,7 +330,22 @@ fn read_policy(row: &Row<'_>) -> Result<Policy> {
             format!("must be a positive annual amount, found {amount}"),
         ));
     }
-    let deferral = years(row, "deferral")?.unwrap_or(0);
+    let (deferral, deferral_column) = match (row.text("start_date"), dated) {
+        (Some(text), Some((valuation, _))) => {
+            let start = parse_date(text).map_err(|rule| row.error("start_date", rule))?;
+            let years = deferral_years(valuation, start);
+            if i64::from(age) + years > i64::from(MAX_AGE) {
+                return Err(row.error(
+                    "start_date",
+                    format!(
+                        "{start} is {years} years after the valuation date {valuation}, which from age {age} puts the first payment beyond age {MAX_AGE}"
+                    ),
+                ));
+            }
+            (years as u32, "start_date")
+        }
+        _ => (years(row, "deferral")?.unwrap_or(0), "deferral"),
+    };
     let term = years(row, "term")?;
     if term == Some(0) {
         return Err(row.error(
@@ -259,7 +364,7 @@ fn read_policy(row: &Row<'_>) -> Result<Policy> {
     }
     if age as i64 + deferral as i64 > MAX_AGE as i64 {
         return Err(row.error(
-            "deferral",
+            deferral_column,
             format!("{deferral} years from age {age} puts the first payment beyond age {MAX_AGE}"),
         ));
     }

@@ -8,11 +8,15 @@ use std::path::{Path, PathBuf};
 
 use serde::{Deserialize, Serialize};
 
+pub use crate::data::dates::AgeBasis;
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::hedge::HedgeConfig;
 pub use crate::interest::Timing;
 pub use crate::series::CohortSeriesKind;
+
+/// Why a config with hedges needs stochastic scenarios (`projection.noise`).
+pub const HEDGES_NEED_NOISE: &str = "hedges are priced on stochastic scenarios: set `noise = true`";
 
 /// The whole configuration file.
 #[derive(Debug, Clone, Deserialize, Serialize)]
@@ -50,8 +54,16 @@ pub struct Config {
 #[derive(Debug, Clone, Deserialize, Serialize)]
 #[serde(deny_unknown_fields)]
 pub struct DataConfig {
-    /// Experience CSV (`year,age,sex,deaths,exposure`).
-    pub experience: PathBuf,
+    /// Experience CSV or spreadsheet (`year,age,sex,deaths,exposure`); or give
+    /// `deaths` and `exposures` instead.
+    #[serde(default)]
+    pub experience: Option<PathBuf>,
+    /// Published deaths table (`Year Age Female Male Total`), with `exposures`.
+    #[serde(default)]
+    pub deaths: Option<PathBuf>,
+    /// Published exposures table, with `deaths`.
+    #[serde(default)]
+    pub exposures: Option<PathBuf>,
     /// Book CSV (`id,sex,age,amount,...`); optional for fit/project-only runs.
     #[serde(default)]
     pub book: Option<PathBuf>,
@@ -65,13 +77,40 @@ pub struct DataConfig {
 }
 
 /// A single model kind or a list of them.
-#[derive(Debug, Clone, Deserialize, Serialize, PartialEq)]
+#[derive(Debug, Clone, Serialize, PartialEq)]
 #[serde(untagged)]
 pub enum KindList {
     /// One kind.
     One(ModelKind),
     /// Several kinds, fitted and ranked; the first is projected.
     Many(Vec<ModelKind>),
+}
+
+impl<'de> Deserialize<'de> for KindList {
+    /// A name or a list of names, each read as a [`ModelKind`] so that a misspelt kind is
+    /// reported as an unknown variant with the known ones (an untagged enum would only say
+    /// that nothing matched).
+    fn deserialize<D: serde::Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        #[derive(Deserialize)]
+        #[serde(untagged)]
+        enum Names {
+            One(String),
+            Many(Vec<String>),
+        }
+        let kind = |name: String| {
+            use serde::de::IntoDeserializer;
+            let name: serde::de::value::StringDeserializer<D::Error> = name.into_deserializer();
+            ModelKind::deserialize(name)
+        };
+        match Names::deserialize(deserializer)? {
+            Names::One(name) => kind(name).map(KindList::One),
+            Names::Many(names) => names
+                .into_iter()
+                .map(kind)
+                .collect::<Result<_, _>>()
+                .map(KindList::Many),
+        }
+    }
 }
 
 /// Mortality model families.
@@ -278,6 +317,13 @@ pub struct ValuationConfig {
     /// The book's mortality level relative to the population, by sex and age band.
     #[serde(default)]
     pub mortality_factors: Vec<MortalityFactor>,
+    /// Valuation date `YYYY-MM-DD` within the valuation year: the date the book's
+    /// `birth_date` and `start_date` are read at.
+    #[serde(default)]
+    pub date: Option<String>,
+    /// How ages are read from dates of birth: `last-birthday` (default) or `nearest`.
+    #[serde(default)]
+    pub age_basis: AgeBasis,
 }
 
 /// `[capital]`.
@@ -441,6 +487,8 @@ impl Default for ValuationConfig {
             idiosyncratic: true,
             horizons: Vec::new(),
             mortality_factors: Vec::new(),
+            date: None,
+            age_basis: AgeBasis::default(),
         }
     }
 }
@@ -515,7 +563,7 @@ impl Config {
         let mut config: Config = serde_path_to_error::deserialize(de).map_err(|e| {
             let key = e.path().to_string();
             let inner = e.into_inner();
-            let message = inner.message().trim().to_string();
+            let message = crate::data::suggest::serde_hint(inner.message().trim());
             let key = if key == "." || key.is_empty() {
                 "(top level)".to_string()
             } else {
@@ -568,6 +616,29 @@ impl Config {
         self.valuation.year.unwrap_or(self.data.years[1] + 1)
     }
 
+    /// The valuation date (`valuation.date`), if given; checked by [`Config::parse`] to
+    /// be a date within the valuation year.
+    pub fn valuation_date(&self) -> Option<chrono::NaiveDate> {
+        self.valuation
+            .date
+            .as_deref()
+            .and_then(|text| crate::data::dates::parse_date(text).ok())
+    }
+
+    /// The experience inputs with their roles (`experience`, or `deaths` and
+    /// `exposures`), resolved against the config's folder; a spreadsheet's `#sheet` is kept.
+    pub fn experience_inputs(&self) -> Vec<(&'static str, PathBuf)> {
+        let d = &self.data;
+        [
+            ("experience", &d.experience),
+            ("deaths", &d.deaths),
+            ("exposures", &d.exposures),
+        ]
+        .into_iter()
+        .filter_map(|(role, path)| path.as_ref().map(|p| (role, self.resolve(p))))
+        .collect()
+    }
+
     /// The output folder resolved against the config's folder.
     pub fn output_folder(&self) -> PathBuf {
         self.resolve(&self.output.folder)
@@ -606,6 +677,33 @@ impl Config {
                 "data.years",
                 "needs at least three years to estimate a random walk",
             ));
+        }
+        match (&d.experience, &d.deaths, &d.exposures) {
+            (Some(_), None, None) | (None, Some(_), Some(_)) => {}
+            (Some(_), _, _) => {
+                return Err(self.err(
+                    "data.experience",
+                    "give `experience` or the published `deaths` and `exposures`, not both",
+                ));
+            }
+            (None, Some(_), None) => {
+                return Err(self.err(
+                    "data.exposures",
+                    "`data.deaths` needs `data.exposures`, the matching published exposures table",
+                ));
+            }
+            (None, None, Some(_)) => {
+                return Err(self.err(
+                    "data.deaths",
+                    "`data.exposures` needs `data.deaths`, the matching published deaths table",
+                ));
+            }
+            (None, None, None) => {
+                return Err(self.err(
+                    "data.experience",
+                    "missing: name the experience (`year,age,sex,deaths,exposure`, CSV or spreadsheet) with `data.experience`, or published tables with `data.deaths` and `data.exposures`",
+                ));
+            }
         }
         if d.sexes.is_empty() {
             return Err(self.err("data.sexes", "must list at least one of \"F\", \"M\""));
@@ -723,6 +821,17 @@ impl Config {
             }
             _ => {}
         }
+        if let Some(text) = &v.date {
+            let date = crate::data::dates::parse_date(text)
+                .map_err(|rule| self.err("valuation.date", rule))?;
+            let year = self.valuation_year();
+            if chrono::Datelike::year(&date) != year {
+                return Err(self.err(
+                    "valuation.date",
+                    format!("{text} is not in the valuation year {year} (`valuation.year`)"),
+                ));
+            }
+        }
         if v.horizons.contains(&0) {
             return Err(self.err("valuation.horizons", "horizons must be at least 1 year"));
         }
@@ -765,6 +874,9 @@ impl Config {
         }
         if let Some(hedge) = &self.hedge {
             hedge.check(self)?;
+            if !p.noise {
+                return Err(self.err("projection.noise", HEDGES_NEED_NOISE));
+            }
         }
         Ok(())
     }

@@ -10,6 +10,7 @@ use std::collections::HashMap;
 use std::io::Read;
 use std::path::{Path, PathBuf};
 
+use crate::data::spreadsheet::{self, SheetRows};
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
 
@@ -25,6 +26,8 @@ pub const MAX_LINE_BYTES: usize = 4096;
 pub struct Table {
     /// The file, for messages.
     pub file: PathBuf,
+    /// 1-based line (or sheet row) of the header.
+    pub header_line: usize,
     /// Column name → position in each row.
     columns: HashMap<String, usize>,
     /// Rows after the header, with their line numbers.
@@ -44,9 +47,49 @@ impl Table {
     /// Reads `path`, checks it is UTF-8 with a header naming every `required` column and
     /// only columns from `required` and `optional` (names compared ignoring case), and that
     /// each row has one field per column.
+    /// A spreadsheet (`.xlsx`, `.ods`, ..., with an optional `#sheet`) is read from its
+    /// sheet under the same rules ([`crate::data::spreadsheet`]).
     pub fn read(path: &Path, required: &[&str], optional: &[&str]) -> Result<Table> {
+        if spreadsheet::is_spreadsheet(path) {
+            return Table::from_sheet(spreadsheet::read_sheet(path)?, required, optional);
+        }
         let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
         Table::from_reader(file, path, required, optional)
+    }
+
+    /// The table of one spreadsheet sheet: its first non-empty row is the header.
+    pub fn from_sheet(sheet: SheetRows, required: &[&str], optional: &[&str]) -> Result<Table> {
+        let file = sheet.label;
+        let mut rows = sheet.rows.into_iter();
+        let Some((header_line, header)) = rows.next() else {
+            return Err(Error::File {
+                file,
+                rule: format!(
+                    "empty sheet: expected a header row `{}` and data rows",
+                    required.join(",")
+                ),
+            });
+        };
+        let header = csv::StringRecord::from(header);
+        let columns = header_columns(&file, header_line, &header, required, optional)?;
+        let mut records = Vec::new();
+        for (line, mut cells) in rows {
+            if cells.len() > header.len() {
+                return Err(Error::Row {
+                    file,
+                    row: line,
+                    rule: format!("has a value beyond the header's {} columns", header.len()),
+                });
+            }
+            cells.resize(header.len(), String::new());
+            records.push((line, csv::StringRecord::from(cells)));
+        }
+        Ok(Table {
+            file,
+            header_line,
+            columns,
+            rows: records,
+        })
     }
 
     /// As [`Table::read`] on any reader (a file, a buffer); `path` is used for messages.
@@ -137,6 +180,7 @@ impl Table {
         }
         Ok(Table {
             file,
+            header_line,
             columns,
             rows,
         })
@@ -166,6 +210,15 @@ impl Table {
         })
     }
 
+    /// An error about the header line.
+    pub fn header_error(&self, rule: impl Into<String>) -> Error {
+        Error::Row {
+            file: self.file.clone(),
+            row: self.header_line,
+            rule: rule.into(),
+        }
+    }
+
     /// An error about the file as a whole.
     pub fn file_error(&self, rule: impl Into<String>) -> Error {
         Error::File {
@@ -193,6 +246,11 @@ impl<'a> Row<'a> {
             row: self.line,
             rule: rule.into(),
         }
+    }
+
+    /// Whether the table has `column`.
+    pub fn has(&self, column: &str) -> bool {
+        self.table.has(column)
     }
 
     /// The trimmed text of `column`; `None` if the header lacks it or the field is empty.
@@ -299,13 +357,7 @@ fn header_columns(
             return Err(row_error(format!("header column {} has no name", i + 1)));
         }
         if !allowed.contains(&name) {
-            let hint = allowed
-                .iter()
-                .map(|a| (strsim::levenshtein(a, name), a))
-                .filter(|(d, _)| *d <= 2)
-                .min()
-                .map(|(_, a)| format!(" (did you mean `{a}`?)"))
-                .unwrap_or_default();
+            let hint = crate::data::suggest::hint(name, allowed.iter().copied());
             return Err(row_error(format!(
                 "unknown column `{name}`{hint}; the columns are {}",
                 allowed

@@ -20,6 +20,7 @@ use std::path::{Path, PathBuf};
 use nalgebra::DMatrix;
 
 use crate::data::csv_input::{self, MAX_AGE, Table};
+use crate::data::published::{PublishedTable, experience_from_published};
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 
@@ -154,9 +155,10 @@ impl Experience {
     /// Every row is checked, inside the window or not: field count, numbers (finite,
     /// non-negative), whole ages in 0..=130 and years in 1700..=2300, sex codes, duplicate
     /// cells, and deaths with zero exposure. Errors name the file, line and column.
+    /// A spreadsheet path (`.xlsx`, `.ods`, optionally `#sheet`) is read from its sheet.
     pub fn load(path: &Path, ages: Span, years: Span, sexes: &[Sex]) -> Result<Experience> {
-        let file = std::fs::File::open(path).map_err(|e| Error::io(path, e))?;
-        Experience::from_reader(path, file, ages, years, sexes)
+        let table = Table::read(path, &EXPERIENCE_COLUMNS, &[])?;
+        Experience::from_table(&table, ages, years, sexes)
     }
 
     /// As [`Experience::load`] on any reader; `path` names the input in messages and is
@@ -169,6 +171,11 @@ impl Experience {
         sexes: &[Sex],
     ) -> Result<Experience> {
         let table = Table::from_reader(reader, path, &EXPERIENCE_COLUMNS, &[])?;
+        Experience::from_table(&table, ages, years, sexes)
+    }
+
+    /// As [`Experience::load`] on a table already parsed with the experience's columns.
+    pub fn from_table(table: &Table, ages: Span, years: Span, sexes: &[Sex]) -> Result<Experience> {
         if table.is_empty() {
             return Err(table.file_error("no data rows after the header"));
         }
@@ -254,19 +261,39 @@ impl Experience {
             populations.push(Population::new(sex, ages, years, deaths, exposure)?);
         }
         Ok(Experience {
-            source: path.to_path_buf(),
+            source: table.file.clone(),
             populations,
         })
     }
 
-    /// The experience a config names, for its fitted ages, years and sexes.
+    /// The experience a config names (`data.experience`, or the published
+    /// `data.deaths` and `data.exposures`), for its fitted ages, years and sexes.
     pub fn from_config(config: &crate::data::Config) -> Result<Experience> {
-        Experience::load(
-            &config.resolve(&config.data.experience),
-            config.ages(),
-            config.years(),
-            &config.data.sexes,
-        )
+        let d = &config.data;
+        match (&d.experience, &d.deaths, &d.exposures) {
+            (Some(path), _, _) => Experience::load(
+                &config.resolve(path),
+                config.ages(),
+                config.years(),
+                &d.sexes,
+            ),
+            (None, Some(deaths), Some(exposures)) => {
+                let deaths = PublishedTable::load(&config.resolve(deaths))?;
+                let exposures = PublishedTable::load(&config.resolve(exposures))?;
+                experience_from_published(
+                    &deaths,
+                    &exposures,
+                    config.ages(),
+                    config.years(),
+                    &d.sexes,
+                )
+            }
+            _ => Err(Error::config(
+                &config.file,
+                "data.experience",
+                "no experience named",
+            )),
+        }
     }
 
     /// Writes the experience as CSV (`year,age,sex,deaths,exposure`, by sex, year, age) to

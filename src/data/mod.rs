@@ -6,11 +6,16 @@
 
 pub mod book;
 pub mod config;
+pub mod coverage;
 pub mod csv_input;
 pub mod curve;
+pub mod dates;
 pub mod experience;
+pub mod published;
 pub mod sex;
 pub mod span;
+pub mod spreadsheet;
+pub mod suggest;
 
 pub use book::{Book, Policy};
 pub use config::Config;

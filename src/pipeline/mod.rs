@@ -4,6 +4,8 @@
 //! model fitted to each sex, a projector over the joint basis — and must build them the same
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
+pub mod inputs;
+
 use std::ops::Range;
 use std::sync::Arc;
 
@@ -324,12 +326,14 @@ fn whole_future_horizon(row: &crate::valuation::LifetimeRow, setup: &ValuationSe
 
 /// The config and every input it names, hashed for the record.
 pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
-    let mut paths = vec![
-        ("config", config.file.clone()),
-        ("experience", config.resolve(&config.data.experience)),
-    ];
+    let mut paths = vec![("config", config.file.clone())];
+    paths.extend(config.experience_inputs());
     if let Some(book) = &config.data.book {
         paths.push(("book", config.resolve(book)));
+    }
+    // A spreadsheet is hashed whole, whichever sheet is read.
+    for (_, path) in &mut paths {
+        *path = crate::data::spreadsheet::split_sheet(path).0;
     }
     if let Some(curve) = &config.valuation.curve {
         paths.push(("curve", config.resolve(curve)));
@@ -461,7 +465,7 @@ pub fn hedge_stage(
             return Err(Error::config(
                 &config.file,
                 "projection.noise",
-                "hedges are priced on stochastic scenarios: set `noise = true`",
+                crate::data::config::HEDGES_NEED_NOISE,
             ));
         }
     };

@@ -7,9 +7,11 @@
 //! per-scenario path allocates once the workspace has grown to size.
 
 use std::collections::HashMap;
+use std::path::Path;
 
 use rand::Rng;
 
+use crate::data::coverage::{ProjectedRange, check_book_coverage};
 use crate::data::sex::sex_index;
 use crate::data::{Book, Sex};
 use crate::error::{Error, Result};
@@ -119,19 +121,16 @@ impl PreparedBook {
             .map(|p| p.age)
             .min()
             .unwrap_or(first_age);
-        if let Some(p) = book
-            .policies
-            .iter()
-            .find(|p| p.age < first_age || p.age >= max_age)
-        {
-            return Err(Error::File {
-                file: book.source.clone(),
-                rule: format!(
-                    "policy `{}` is aged {}, outside the projected ages {first_age}..{max_age}: widen `data.ages`",
-                    p.id, p.age
-                ),
-            });
-        }
+        check_book_coverage(
+            book,
+            &ProjectedRange {
+                first_age,
+                max_age,
+                year,
+                last_year,
+            },
+            Path::new(""),
+        )?;
         // Rates are needed to the youngest life's max_age; guaranteed payments can run
         // beyond it (a certain period outlives the table), so the schedules cover both.
         let rate_years = (max_age - youngest + 1) as usize;
@@ -142,16 +141,6 @@ impl PreparedBook {
             .max()
             .unwrap_or(0);
         let years = rate_years.max(certain_years);
-        let needed = year + rate_years as i32 - 1;
-        if needed > last_year {
-            return Err(Error::config(
-                "",
-                "projection.horizon",
-                format!(
-                    "valuing a life aged {youngest} from {year} to age {max_age} needs rates to {needed}, but the projection ends in {last_year}"
-                ),
-            ));
-        }
 
         let mut cohort_index: HashMap<(Sex, i32, u64), u32> = HashMap::new();
         let mut shape_index: HashMap<PaymentShape, u32> = HashMap::new();

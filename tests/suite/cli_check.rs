@@ -47,7 +47,8 @@ fn assert_rejected(case: &str, out: &Output, expected: &[&str]) {
 }
 
 /// A config over the good inputs, with `kind` (experience, book or curve) replaced by
-/// `file`; window ages 60–62, years 2000–2002; output folder `out` beside the config.
+/// `file`; window ages 60–62, years 2000–2002, valuation date 2003-07-01 (for the books
+/// with dates, copies of `good/book_dates.csv`); output folder `out` beside the config.
 fn config_with(dir: &Path, kind: &str, file: &Path) -> PathBuf {
     let pick = |k: &str| {
         if k == kind {
@@ -56,10 +57,20 @@ fn config_with(dir: &Path, kind: &str, file: &Path) -> PathBuf {
             bad("good", &format!("{k}.csv"))
         }
     };
+    // Published deaths replace the experience, beside the good exposures table.
+    let experience = if kind == "deaths" {
+        format!(
+            "deaths = {:?}\nexposures = {:?}",
+            file,
+            bad("good", "exposures.txt")
+        )
+    } else {
+        format!("experience = {:?}", pick("experience"))
+    };
     let text = format!(
-        "[data]\nexperience = {:?}\nbook = {:?}\nages = [60, 62]\nyears = [2000, 2002]\n\n\
-         [model]\nclosure_fit_ages = 3\n\n[valuation]\ncurve = {:?}\n\n[output]\nfolder = \"out\"\n",
-        pick("experience"),
+        "[data]\n{experience}\nbook = {:?}\nages = [60, 62]\nyears = [2000, 2002]\n\n\
+         [model]\nclosure_fit_ages = 3\n\n[valuation]\ncurve = {:?}\ndate = \"2003-07-01\"\n\n\
+         [output]\nfolder = \"out\"\n",
         pick("book"),
         pick("curve")
     );
@@ -176,6 +187,48 @@ const EXPERIENCE: &[Case] = &[
     ),
 ];
 
+/// Published deaths tables (`data.deaths`), copies of `good/deaths.txt`.
+const DEATHS: &[Case] = &[
+    (
+        "missing_female.txt",
+        &[
+            "row 10",
+            "column `Female`",
+            "is missing",
+            "`data.ages` = [60, 62]",
+        ],
+    ),
+    (
+        "total_not_the_sum.txt",
+        &["row 6", "column `Total`", "64 is not Female + Male = 63"],
+    ),
+    (
+        "no_header.txt",
+        &["no header line `Year Age Female Male Total`"],
+    ),
+    (
+        "text_figure.txt",
+        &["row 13", "column `Male`", "`3x3` is not a number"],
+    ),
+    (
+        "negative_deaths.txt",
+        &["row 11", "column `Male`", "must not be negative"],
+    ),
+    (
+        "open_group_in_window.txt",
+        &["row 11", "column `Age`", "`62+` is an open age group"],
+    ),
+    (
+        "repeated_age.txt",
+        &[
+            "row 14",
+            "duplicate or out-of-order age 60 in 2002",
+            "line 13",
+        ],
+    ),
+    ("extra_field.txt", &["row 7", "has 6 fields", "5 columns"]),
+];
+
 const BOOK: &[Case] = &[
     (
         "duplicate_id.csv",
@@ -247,6 +300,47 @@ const BOOK: &[Case] = &[
     ),
     ("empty_id.csv", &["row 4", "column `id`", "is empty"]),
     ("tab_separated.csv", &["row 1", "separated by '\\t'"]),
+    (
+        "birth_date_29_february_1943.csv",
+        &[
+            "row 4",
+            "column `birth_date`",
+            "`1943-02-29`",
+            "no such day",
+        ],
+    ),
+    (
+        "birth_date_after_valuation.csv",
+        &[
+            "row 7",
+            "column `birth_date`",
+            "after the valuation date 2003-07-01",
+        ],
+    ),
+    (
+        "birth_date_day_first.csv",
+        &["row 2", "column `birth_date`", "YYYY-MM-DD"],
+    ),
+    (
+        "birth_date_aged_131.csv",
+        &["row 6", "column `birth_date`", "131 is impossible"],
+    ),
+    (
+        "start_date_beyond_130.csv",
+        &["row 4", "column `start_date`", "beyond age 130"],
+    ),
+    (
+        "deferral_and_start_date.csv",
+        &["row 1", "`deferral` or `start_date`, not both"],
+    ),
+    (
+        "aged_130.csv",
+        &[
+            "policy `A5` is aged 130",
+            "outside the projected ages 60..120",
+            "`model.max_age`",
+        ],
+    ),
 ];
 
 const CURVE: &[Case] = &[
@@ -275,11 +369,21 @@ const CURVE: &[Case] = &[
 const CONFIG: &[Case] = &[
     (
         "unknown_key.toml",
-        &["unknown_key.toml", "`data.experiance`", "unknown field"],
+        &[
+            "unknown_key.toml",
+            "`data.experiance`",
+            "unknown field",
+            "did you mean `experience`",
+        ],
     ),
     (
         "unknown_section.toml",
-        &["unknown_section.toml", "`valuaton`", "unknown field"],
+        &[
+            "unknown_section.toml",
+            "`valuaton`",
+            "unknown field",
+            "did you mean `valuation`",
+        ],
     ),
     (
         "rate_percent.toml",
@@ -362,6 +466,48 @@ const CONFIG: &[Case] = &[
         "missing_data_key.toml",
         &["missing_data_key.toml", "`data`", "missing field `years`"],
     ),
+    (
+        "horizon_too_short.toml",
+        &[
+            "horizon_too_short.toml",
+            "`projection.horizon`",
+            "needs rates to 2063",
+            "ends in 2042",
+        ],
+    ),
+    (
+        "misspelt_model_kind.toml",
+        &[
+            "misspelt_model_kind.toml",
+            "`model.kind`",
+            "unknown variant `lee-carer`",
+            "did you mean `lee-carter`",
+        ],
+    ),
+    (
+        "book_dates_without_valuation_date.toml",
+        &[
+            "book_dates_without_valuation_date.toml",
+            "`valuation.date`",
+            "book_dates.csv gives dates",
+        ],
+    ),
+    (
+        "valuation_date_outside_year.toml",
+        &[
+            "valuation_date_outside_year.toml",
+            "`valuation.date`",
+            "2004-01-01 is not in the valuation year 2003",
+        ],
+    ),
+    (
+        "hedge_without_noise.toml",
+        &[
+            "hedge_without_noise.toml",
+            "`projection.noise`",
+            "set `noise = true`",
+        ],
+    ),
 ];
 
 fn run_csv_cases(kind: &str, cases: &[Case]) {
@@ -375,6 +521,68 @@ fn run_csv_cases(kind: &str, cases: &[Case]) {
         let left: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
         assert_eq!(left.len(), 1, "{kind}/{name}: check wrote something");
         assert!(!dir.path().join("out").exists());
+    }
+}
+
+/// Runs `command` on `config` and requires the refusal `check` gave: exit code 2, the
+/// same message, nothing on standard output, and no output folder.
+fn assert_command_agrees(case: &str, command: &str, config: &Path, checked: &Output) {
+    let out = bin()
+        .args(["--quiet", command])
+        .arg(config)
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        checked.status.code(),
+        "{case}: `{command}` exit code; stderr: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert_eq!(
+        String::from_utf8_lossy(&out.stderr),
+        String::from_utf8_lossy(&checked.stderr),
+        "{case}: `{command}` and `check` refuse differently"
+    );
+    assert!(out.stdout.is_empty(), "{case}: `{command}` printed output");
+    let folder = config.parent().unwrap().join("out");
+    assert!(!folder.exists(), "{case}: `{command}` wrote {folder:?}");
+}
+
+/// The commands that must refuse each kind of bad input as `check` does: `run` always,
+/// and the command that first reads the input.
+fn commands_for(kind: &str) -> &'static [&'static str] {
+    match kind {
+        "experience" | "deaths" => &["run", "fit", "project"],
+        "book" | "curve" => &["run", "value"],
+        _ => &["run", "value"],
+    }
+}
+
+#[test]
+fn commands_refuse_every_bad_input_as_check_does() {
+    for (kind, cases) in [
+        ("experience", EXPERIENCE),
+        ("deaths", DEATHS),
+        ("book", BOOK),
+        ("curve", CURVE),
+    ] {
+        for (name, _) in cases {
+            let dir = tempfile::tempdir().unwrap();
+            let config = config_with(dir.path(), kind, &bad(kind, name));
+            let checked = check(&config);
+            assert_eq!(checked.status.code(), Some(2), "{kind}/{name}");
+            for command in commands_for(kind) {
+                assert_command_agrees(&format!("{kind}/{name}"), command, &config, &checked);
+            }
+        }
+    }
+    for (name, _) in CONFIG {
+        let config = bad("config", name);
+        let checked = check(&config);
+        assert_eq!(checked.status.code(), Some(2), "config/{name}");
+        for command in commands_for("config") {
+            assert_command_agrees(&format!("config/{name}"), command, &config, &checked);
+        }
     }
 }
 
@@ -404,8 +612,57 @@ fn good_inputs_pass() {
 }
 
 #[test]
+fn book_with_dates_checks() {
+    let dir = tempfile::tempdir().unwrap();
+    let config = config_with(dir.path(), "book", &bad("good", "book_dates.csv"));
+    let out = check(&config);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // Ages last birthday at 2003-07-01: D3 born 1943-01-01 is 60, D5 born 1912-02-29 is 91;
+    // D3 starts on 2008-07-01, five years on.
+    assert!(
+        stdout.contains("policies  6 (7 lives), ages 60-91"),
+        "{stdout}"
+    );
+    assert!(stdout.contains("1 deferred, 3 guaranteed"), "{stdout}");
+}
+
+#[test]
 fn bad_experience_files_are_rejected() {
     run_csv_cases("experience", EXPERIENCE);
+}
+
+#[test]
+fn bad_published_tables_are_rejected() {
+    run_csv_cases("deaths", DEATHS);
+}
+
+#[test]
+fn published_tables_check_and_print_what_was_read() {
+    let dir = tempfile::tempdir().unwrap();
+    let config = config_with(dir.path(), "deaths", &bad("good", "deaths.txt"));
+    let out = check(&config);
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    // The same cells as good/experience.csv in the window: 18 cells, F deaths 198.
+    assert!(stdout.contains("18 cells"), "{stdout}");
+    assert!(stdout.contains("sex F     deaths 198,"), "{stdout}");
+    assert!(
+        stdout.contains("12 lines, years 2000-2002, ages 60-62 and 63+, 6 missing cell(s)"),
+        "{stdout}"
+    );
+    assert!(
+        stdout.contains("9 lines, years 2000-2002, ages 60-62, 0 missing cell(s)"),
+        "{stdout}"
+    );
 }
 
 #[test]
@@ -436,6 +693,7 @@ fn every_bad_file_has_a_case() {
     // A file added under tests/bad/ without a row in the tables would never be run.
     for (kind, cases) in [
         ("experience", EXPERIENCE),
+        ("deaths", DEATHS),
         ("book", BOOK),
         ("curve", CURVE),
         ("config", CONFIG),

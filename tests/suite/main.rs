@@ -13,6 +13,7 @@ mod guards_cli;
 mod hedge_config;
 mod hedge_pricing;
 mod hedge_trend;
+mod inputs_layouts;
 mod kill_cli;
 mod life_cli;
 mod life_properties;
