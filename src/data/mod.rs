@@ -9,11 +9,13 @@ pub mod config;
 pub mod csv_input;
 pub mod curve;
 pub mod experience;
+pub mod paths_output;
 pub mod sex;
 pub mod span;
 
 pub use book::{Book, Policy};
 pub use config::Config;
 pub use experience::{Experience, Population};
+pub use paths_output::PathsOutput;
 pub use sex::Sex;
 pub use span::Span;
