@@ -39,7 +39,7 @@ fn run(scenarios: usize, folder: &std::path::Path, paths: bool) -> u64 {
     let mut p = projector();
     let options = OutputOptions {
         folder: folder.to_path_buf(),
-        paths,
+        paths: paths.into(),
         compression: Compression::Zstd,
         shard: None,
         row_group_rows: ROW_GROUP_ROWS,

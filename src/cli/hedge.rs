@@ -4,7 +4,7 @@ use std::io::Write as _;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::data::Config;
+use crate::data::{Config, PathsOutput};
 use crate::error::{Error, Result};
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::{Recorded, retire_stale_records};
@@ -55,7 +55,7 @@ pub fn run(args: &HedgeArgs, quiet: bool) -> Result<()> {
     let scratch = tempfile::tempdir().map_err(|e| Error::io(std::env::temp_dir(), e))?;
     let options = OutputOptions {
         folder: scratch.path().to_path_buf(),
-        paths: false,
+        paths: PathsOutput::None,
         compression: config.output.compression,
         shard: None,
         row_group_rows: ROW_GROUP_ROWS,

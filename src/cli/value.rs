@@ -4,7 +4,7 @@ use std::io::Write as _;
 use std::path::PathBuf;
 
 use crate::cli::progress::Progress;
-use crate::data::Config;
+use crate::data::{Config, PathsOutput};
 use crate::error::{Error, Result};
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
@@ -48,7 +48,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     let setup = ValuationSetup::new(&config, book, &projector)?;
     let options = OutputOptions {
         folder: config.output_folder(),
-        paths: false,
+        paths: PathsOutput::None,
         compression: config.output.compression,
         shard,
         row_group_rows: ROW_GROUP_ROWS,

@@ -9,7 +9,7 @@ use std::path::{Path, PathBuf};
 use serde::{Deserialize, Serialize};
 
 pub use crate::data::dates::AgeBasis;
-use crate::data::{Sex, Span};
+use crate::data::{PathsOutput, Sex, Span};
 use crate::error::{Error, Result};
 use crate::hedge::HedgeConfig;
 pub use crate::interest::Timing;
@@ -363,9 +363,9 @@ pub struct OutputConfig {
     /// Output folder.
     #[serde(default = "default_folder")]
     pub folder: PathBuf,
-    /// Write the large `paths.parquet`.
-    #[serde(default = "default_true")]
-    pub paths: bool,
+    /// Which scenarios `paths.parquet` holds: `true`, `false` or a number N.
+    #[serde(default)]
+    pub paths: PathsOutput,
     /// Parquet compression.
     #[serde(default = "default_compression")]
     pub compression: Compression,
@@ -508,7 +508,7 @@ impl Default for OutputConfig {
     fn default() -> Self {
         OutputConfig {
             folder: default_folder(),
-            paths: true,
+            paths: PathsOutput::All,
             compression: default_compression(),
         }
     }

@@ -101,6 +101,22 @@ impl MortalityModel for LeeCarter {
     fn fit(&self, population: &Population) -> Result<Box<dyn FittedModel>> {
         Ok(Box::new(self.fit_population(population)?))
     }
+
+    /// The Poisson fit starts from `base`'s a_x, b_x and k_t, each new year's k_t solved
+    /// given them, instead of from an SVD of the log rates; it stops by the same rule, so
+    /// it lands on the same maximum within the tolerance. The SVD fit is closed form: cold.
+    fn refit(
+        &self,
+        population: &Population,
+        base: &dyn FittedModel,
+    ) -> Result<Box<dyn FittedModel>> {
+        let any: &dyn std::any::Any = base;
+        let start = match (self.params.method, any.downcast_ref::<LeeCarterFit>()) {
+            (LeeCarterMethod::Poisson, Some(base)) => base.warm_start(population),
+            _ => None,
+        };
+        Ok(Box::new(self.fit_from(population, start)?))
+    }
 }
 
 impl LeeCarter {
@@ -111,6 +127,12 @@ impl LeeCarter {
 
     /// Fits one population.
     pub fn fit_population(&self, population: &Population) -> Result<LeeCarterFit> {
+        self.fit_from(population, None)
+    }
+
+    /// Fits one population; the Poisson fit starts from `start` when given, else from the
+    /// SVD fit.
+    fn fit_from(&self, population: &Population, start: Option<Parameters>) -> Result<LeeCarterFit> {
         let p = &self.params;
         let ages = population.ages;
         if ages.len() < 2 || population.years.len() < 2 {
@@ -157,7 +179,7 @@ impl LeeCarter {
             }
             LeeCarterMethod::Poisson => {
                 let ((ax, bx, kt), cycles) =
-                    poisson_fit(population, p.tolerance, p.max_iterations)?;
+                    poisson_fit(population, start, p.tolerance, p.max_iterations)?;
                 (ax, bx, kt, cycles)
             }
         };
@@ -190,6 +212,45 @@ impl LeeCarterFit {
     /// The estimator used.
     pub fn fit_method(&self) -> LeeCarterMethod {
         self.method
+    }
+
+    /// Starting values for a fit to `population`, which extends this fit's data by later
+    /// years: this fit's a_x, b_x and k_t, and each new year's k_t maximising that year's
+    /// Poisson likelihood given them (Newton steps from the last fitted k_t). `None`
+    /// when the population is not such an extension.
+    fn warm_start(&self, population: &Population) -> Option<Parameters> {
+        let (ages, years) = (self.basis.ages, self.basis.years);
+        if population.sex != self.basis.sex
+            || population.ages != ages
+            || population.years.first != years.first
+            || population.years.last < years.last
+        {
+            return None;
+        }
+        let n_ages = ages.len();
+        let mut kt: Vec<f64> = self.kt.iter().copied().collect();
+        for j in years.len()..population.years.len() {
+            let (d, e) = (population.deaths.column(j), population.exposure.column(j));
+            let mut k = *kt.last()?;
+            for _ in 0..50 {
+                let (mut score, mut information) = (0.0, 0.0);
+                for i in 0..n_ages {
+                    let fitted = e[i] * (self.ax[i] + self.bx[i] * k).exp();
+                    score += (d[i] - fitted) * self.bx[i];
+                    information += fitted * self.bx[i] * self.bx[i];
+                }
+                let step = score / information;
+                if !step.is_finite() {
+                    return None;
+                }
+                k += step;
+                if step.abs() <= 1e-12 * (1.0 + k.abs()) {
+                    break;
+                }
+            }
+            kt.push(k);
+        }
+        Some((self.ax.clone(), self.bx.clone(), DVector::from_vec(kt)))
     }
 
     /// Log-likelihood, deviance and residuals against the data.
@@ -356,15 +417,17 @@ fn refit_period_index(
 }
 
 /// Poisson maximum likelihood by cycled one-dimensional Newton steps in a, k, b
-/// (Brouhns, Denuit & Vermunt 2002, section 3). Returns (a, b, k, cycles).
+/// (Brouhns, Denuit & Vermunt 2002, section 3), from `start` or the SVD-based starting
+/// values. Returns (a, b, k, cycles).
 fn poisson_fit(
     population: &Population,
+    start: Option<Parameters>,
     tolerance: f64,
     max_iterations: usize,
 ) -> Result<(Parameters, usize)> {
     require_information(population)?;
     let (n_ages, n_years) = (population.ages.len(), population.years.len());
-    let (a0, b0, k0) = starting_values(population);
+    let (a0, b0, k0) = start.unwrap_or_else(|| starting_values(population));
     let mut ax: Vec<f64> = a0.iter().copied().collect();
     let mut bx: Vec<f64> = b0.iter().copied().collect();
     let mut kt: Vec<f64> = k0.iter().copied().collect();

@@ -52,8 +52,9 @@ pub struct FitDiagnostics {
     pub iterations: usize,
 }
 
-/// What the projection engine needs from any fitted model.
-pub trait FittedModel: Send + Sync {
+/// What the projection engine needs from any fitted model. `Any` lets a model's own
+/// [`MortalityModel::refit`] recognise a fit of its kind to start from.
+pub trait FittedModel: std::any::Any + Send + Sync {
     /// Model name as written in files (`lee-carter`, `cbd`).
     fn name(&self) -> &'static str;
 
@@ -128,6 +129,18 @@ pub trait FittedModel: Send + Sync {
 pub trait MortalityModel: Send + Sync {
     /// Fits the model to one population.
     fn fit(&self, population: &Population) -> crate::Result<Box<dyn FittedModel>>;
+
+    /// Fits `population`, which extends `base`'s data by later years (the one-year
+    /// re-calibration), starting where `base` ended when the model can: the result equals
+    /// [`MortalityModel::fit`]'s within the fit's tolerance. By default a cold fit.
+    fn refit(
+        &self,
+        population: &Population,
+        base: &dyn FittedModel,
+    ) -> crate::Result<Box<dyn FittedModel>> {
+        let _ = base;
+        self.fit(population)
+    }
 }
 
 /// Checks the fit settings every model shares; errors name the model `name`.

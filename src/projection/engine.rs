@@ -12,10 +12,11 @@ use std::path::PathBuf;
 use std::str::FromStr;
 use std::sync::Arc;
 
-use arrow_array::{ArrayRef, Float64Array, Int16Array, StringArray, UInt32Array};
+use arrow_array::{ArrayRef, Float32Array, Float64Array, Int16Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema, SchemaRef};
 use parquet::basic::Encoding;
 
+use crate::data::PathsOutput;
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
 use crate::io::parquet::{
@@ -91,8 +92,8 @@ impl Shard {
 pub struct OutputOptions {
     /// Output folder.
     pub folder: PathBuf,
-    /// Write `paths.parquet` (the largest file).
-    pub paths: bool,
+    /// Which scenarios `paths.parquet` (the largest file) holds, if written.
+    pub paths: PathsOutput,
     /// Parquet codec.
     pub compression: Compression,
     /// Write only this shard, to `part-K-of-N` files.
@@ -123,35 +124,25 @@ pub struct Written {
     pub files: Vec<PathBuf>,
     /// Rows of `paths.parquet` (0 when it is not written).
     pub path_rows: u64,
-    /// Whether `paths.parquet` has an `m` column.
-    pub central_rates: bool,
-}
-
-/// Whether the models are log-rate models, whose central rate m = −ln(1 − q) is written
-/// beside q. CBD-type models (logit q) model q itself, so `m` is left out for them rather
-/// than written as a derived number nobody fitted.
-pub fn has_central_rate(model_name: &str) -> bool {
-    !(model_name.starts_with("cbd") || model_name == "m6" || model_name == "m7")
 }
 
 fn label_field(name: &str) -> Field {
     Field::new(name, DataType::Utf8, false)
 }
 
-/// Schema of `paths.parquet`; `m` is nullable because it is infinite (written as null)
-/// where q = 1.
-pub fn paths_schema(central_rates: bool) -> SchemaRef {
-    let mut fields = vec![
+/// Schema of `paths.parquet`. q is a 32-bit float: its 24-bit significand keeps q to a
+/// relative 6e-8, far inside any use of a path (the valuation and every other file work
+/// from the 64-bit rates), and halves the file beside 64 bits; with the central rate
+/// m = −ln(1 − q) left to the reader instead of stored, a row takes about a quarter of
+/// the bytes it took.
+pub fn paths_schema() -> SchemaRef {
+    Arc::new(Schema::new(vec![
         Field::new("scenario", DataType::UInt32, false),
         label_field("sex"),
         Field::new("year", DataType::Int16, false),
         Field::new("age", DataType::Int16, false),
-        Field::new("q", DataType::Float64, false),
-    ];
-    if central_rates {
-        fields.push(Field::new("m", DataType::Float64, true));
-    }
-    Arc::new(Schema::new(fields))
+        Field::new("q", DataType::Float32, false),
+    ]))
 }
 
 /// Schema of `factors.parquet`.
@@ -178,8 +169,9 @@ pub fn period_schema() -> SchemaRef {
 /// Column descriptions stored in each file's metadata (key `tailspan.schema`).
 const PATHS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
     sex: F or M; year: projected calendar year; age: age last birthday; \
-    q: one-year probability of death; m (log-rate models only): central rate -ln(1 - q), \
-    null where q = 1";
+    q: one-year probability of death as a 32-bit float (the 64-bit rate rounded to nearest); \
+    the central rate m = -ln(1 - q) is not stored: compute it from q, infinite where q = 1; \
+    rows cover the central path and the scenarios output.paths asks for";
 const FACTORS_DESCRIPTION: &str = "scenario: scenario number, 0 is the central path; \
     sex: F or M; year: projected calendar year, or birth year for factor gamma; \
     factor: period index name (k, k1, k2, k3) or gamma, the cohort index of cohort models \
@@ -203,7 +195,7 @@ fn column_layouts(schema: &Schema) -> Vec<ColumnLayout> {
         .iter()
         .map(|f| {
             let (encoding, statistics) = match f.data_type() {
-                DataType::Float64 => (Encoding::BYTE_STREAM_SPLIT, true),
+                DataType::Float64 | DataType::Float32 => (Encoding::BYTE_STREAM_SPLIT, true),
                 DataType::Utf8 => (Encoding::DELTA_LENGTH_BYTE_ARRAY, false),
                 _ => (Encoding::PLAIN, true),
             };
@@ -237,8 +229,7 @@ struct KeyColumns {
 struct PathColumns {
     keys: KeyColumns,
     age: Vec<i16>,
-    q: Vec<f64>,
-    m: Option<Vec<Option<f64>>>,
+    q: Vec<f32>,
 }
 
 impl KeyColumns {
@@ -283,16 +274,14 @@ struct Layout {
     factor_offsets: Vec<usize>,
     /// Position of `gamma` in `factor_labels` (cohort models only).
     gamma_label: Option<usize>,
-    paths: bool,
-    central_rates: bool,
     period_index: Option<usize>,
 }
 
 /// Most scenarios a chunk holds when paths are not written.
 const MAX_CHUNK_SCENARIOS: usize = 256;
 
-/// Generates scenarios `range`: one row group of paths (when written), and the columns of
-/// the factors and period figures.
+/// Generates scenarios `range`: one row group of paths (when `paths_encoder` is given), and
+/// the columns of the factors and period figures.
 fn encode_chunk(
     projector: &Projector,
     layout: &Layout,
@@ -305,7 +294,7 @@ fn encode_chunk(
     let per_scenario = n_sexes * years.len() * ages.len();
     let count = (range.end - range.start) as usize;
     let mut cols = Columns::default();
-    if layout.paths {
+    if paths_encoder.is_some() {
         let rows = count * per_scenario;
         cols.paths = Some(PathColumns {
             keys: KeyColumns {
@@ -315,7 +304,6 @@ fn encode_chunk(
             },
             age: Vec::with_capacity(rows),
             q: Vec::with_capacity(rows),
-            m: layout.central_rates.then(|| Vec::with_capacity(rows)),
         });
     }
     if layout.period_index.is_some() {
@@ -337,10 +325,7 @@ fn encode_chunk(
         (Some(p), Some(enc)) => {
             let mut arrays = p.keys.arrays(&layout.sex_labels);
             arrays.push(Arc::new(Int16Array::from(p.age)));
-            arrays.push(Arc::new(Float64Array::from(p.q)));
-            if let Some(m) = p.m {
-                arrays.push(Arc::new(Float64Array::from(m)));
-            }
+            arrays.push(Arc::new(Float32Array::from(p.q)));
             Some(enc.encode(&arrays)?)
         }
         _ => None,
@@ -375,10 +360,8 @@ fn append_scenario(
             if let Some(p) = cols.paths.as_mut() {
                 p.keys.push(scenario, i, year, n_ages);
                 p.age.extend_from_slice(ages_column);
-                p.q.extend_from_slice(row);
-                if let Some(m) = p.m.as_mut() {
-                    m.extend(row.iter().map(|&q| (q < 1.0).then(|| -(-q).ln_1p())));
-                }
+                // Rounded to nearest (IEEE-754 `as`): exact for q = 1.
+                p.q.extend(row.iter().map(|&q| q as f32));
             }
             let k = buf.factors(i, h + 1);
             cols.factors.push(scenario, i, year, k.len());
@@ -411,8 +394,8 @@ fn append_scenario(
 }
 
 /// Generates scenarios `ids` (or this shard's block of them) and writes `paths.parquet`
-/// (if asked), `factors.parquet` and `period.parquet` (when age 65 is among the rates'
-/// ages). `progress` is told how many scenarios each finished chunk held. Nothing is left
+/// (if asked, for the scenarios `options.paths` names), `factors.parquet` and
+/// `period.parquet` (when age 65 is among the rates' ages). `progress` is told how many scenarios each finished chunk held. Nothing is left
 /// in the folder if any scenario fails.
 pub fn write_projection(
     projector: &mut Projector,
@@ -426,7 +409,6 @@ pub fn write_projection(
     };
     projector.prepare(ids.clone())?;
     let basis = projector.basis();
-    let central_rates = basis.models().iter().all(|m| has_central_rate(m.name()));
     let mut factor_names = Vec::new();
     let mut factor_offsets = Vec::new();
     for model in basis.models() {
@@ -443,8 +425,6 @@ pub fn write_projection(
         factor_labels: factor_names,
         factor_offsets,
         gamma_label,
-        paths: options.paths,
-        central_rates,
         period_index: ages.index(PERIOD_AGE),
     };
     // Paths, by far the largest file, are encoded on the workers a row group per chunk;
@@ -453,9 +433,9 @@ pub fn write_projection(
     let mut files = Vec::new();
     let mut paths_sink = None;
     let mut paths_encoder = None;
-    if options.paths {
+    if options.paths.written() {
         let path = options.file("paths");
-        let schema = paths_schema(central_rates);
+        let schema = paths_schema();
         let layouts = column_layouts(&schema);
         let (sink, encoder) = RowGroupSink::create(
             &path,
@@ -489,18 +469,23 @@ pub fn write_projection(
         None => None,
     };
 
-    // A chunk is one row group of paths; without paths, a few hundred scenarios, enough
-    // to share out among the threads and few enough that the chunks in flight stay small.
+    // Scenarios ids.start..path_end have their paths written. A chunk of them is one row
+    // group of paths; after them, a chunk is a few hundred scenarios, enough to share out
+    // among the threads and few enough that the chunks in flight stay small. The chunks
+    // depend on the scenario range and `output.paths` alone, never on the threads.
+    let path_end = options.paths.end().clamp(ids.start, ids.end);
     let paths_per_scenario = basis.sexes().len() * projector.years().len() * ages.len();
-    let chunk = if options.paths {
-        (options.row_group_rows / paths_per_scenario.max(1)).max(1)
-    } else {
-        let figures = basis.sexes().len() * projector.years().len() * 2;
-        (options.row_group_rows / figures.max(1)).clamp(1, MAX_CHUNK_SCENARIOS)
-    } as u64;
-    let chunks: Vec<Range<u64>> = (ids.start..ids.end)
-        .step_by(chunk as usize)
-        .map(|s| s..(s + chunk).min(ids.end))
+    let path_chunk = (options.row_group_rows / paths_per_scenario.max(1)).max(1);
+    let figures = basis.sexes().len() * projector.years().len() * 2;
+    let other_chunk = (options.row_group_rows / figures.max(1)).clamp(1, MAX_CHUNK_SCENARIOS);
+    let split = |range: Range<u64>, chunk: usize| {
+        let end = range.end;
+        range
+            .step_by(chunk)
+            .map(move |s| s..(s + chunk as u64).min(end))
+    };
+    let chunks: Vec<Range<u64>> = split(ids.start..path_end, path_chunk)
+        .chain(split(path_end..ids.end, other_chunk))
         .collect();
     // Two chunks per thread in flight: enough to keep every core busy while the previous
     // batch is appended, few enough that memory stays flat.
@@ -510,22 +495,23 @@ pub fn write_projection(
         use rayon::prelude::*;
         batch
             .par_iter()
-            .map(|r| encode_chunk(projector, &layout, r.clone(), paths_encoder.as_deref()))
+            .map(|r| {
+                let encoder = paths_encoder.as_deref().filter(|_| r.end <= path_end);
+                encode_chunk(projector, &layout, r.clone(), encoder)
+            })
             .collect()
     };
     let mut path_rows = 0u64;
     let mut append_batch = |groups: Vec<ChunkGroups>, ranges: &[Range<u64>]| -> Result<()> {
         for (group, range) in groups.into_iter().zip(ranges) {
+            let n = range.end - range.start;
             if let (Some(sink), Some(encoded)) = (paths_sink.as_mut(), group.paths) {
                 sink.append(encoded)?;
+                path_rows += n * paths_per_scenario as u64;
             }
             factors_sink.write_columns(group.factors)?;
             if let (Some(sink), Some(period)) = (period_sink.as_mut(), group.period) {
                 sink.write_columns(period)?;
-            }
-            let n = range.end - range.start;
-            if options.paths {
-                path_rows += n * paths_per_scenario as u64;
             }
             progress(n);
         }
@@ -566,6 +552,5 @@ pub fn write_projection(
         scenarios: ids,
         files,
         path_rows,
-        central_rates,
     })
 }

@@ -372,6 +372,19 @@ pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
             )?;
             outcome.book = Some(WrittenBook::reopen(&mut file)?);
             file
+        } else if stem == "paths" {
+            // Paths cover only the scenarios `output.paths` names: each shard's share of them.
+            let end = config.output.paths.end();
+            let held: Vec<Range<u64>> = blocks
+                .iter()
+                .map(|b| match b.start..b.end.min(end) {
+                    r if r.is_empty() => 0..0,
+                    r => r,
+                })
+                .collect();
+            concat_parts(&parts, stem, &held, compression, &provenance, &mut |_| {
+                Ok(())
+            })?
         } else {
             concat_parts(&parts, stem, &blocks, compression, &provenance, &mut |_| {
                 Ok(())

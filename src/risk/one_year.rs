@@ -79,12 +79,15 @@ fn one_scenario(
     for (i, &sex) in basis.sexes().iter().enumerate() {
         let population = &recalibration.populations[i];
         let extended = extend(population, paths, i, new_years, &mut rng)?;
-        let refit = recalibration.specs[i].fit(&extended).map_err(|e| {
-            Error::model(
-                "one-year",
-                format!("scenario {scenario}, sex {sex}: the re-calibration refit failed: {e}"),
-            )
-        })?;
+        // Warm-started from the base fit: the same maximum within the fit's tolerance.
+        let refit = recalibration.specs[i]
+            .refit(&extended, basis.model(i))
+            .map_err(|e| {
+                Error::model(
+                    "one-year",
+                    format!("scenario {scenario}, sex {sex}: the re-calibration refit failed: {e}"),
+                )
+            })?;
         refits.push((sex, Arc::from(refit)));
     }
     // The refitted central path: no noise, no parameter uncertainty.

@@ -441,6 +441,10 @@ const CONFIG: &[Case] = &[
         "wrong_type.toml",
         &["wrong_type.toml", "`projection.scenarios`", "invalid type"],
     ),
+    (
+        "paths_negative.toml",
+        &["paths_negative.toml", "`output.paths`", "found -5"],
+    ),
     ("empty.toml", &["empty.toml", "missing field `data`"]),
     (
         "max_age_below_window.toml",

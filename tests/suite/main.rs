@@ -37,6 +37,7 @@ mod properties_valuation;
 mod provenance_cli;
 mod report_layout;
 mod report_page;
+mod risk_one_year;
 mod risk_quantiles;
 mod run_cli;
 mod valuation_book;

@@ -5,7 +5,7 @@
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
-use arrow_array::{Array, Float64Array, Int16Array, StringArray, UInt32Array};
+use arrow_array::{Array, Float32Array, Float64Array, Int16Array, StringArray, UInt32Array};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 fn demo(file: &str) -> PathBuf {
@@ -46,7 +46,7 @@ one_year_scenarios = 4
 
 [output]
 folder = "{folder}"
-paths = true
+paths = 15
 "#,
         demo("experience.csv").display(),
         demo("book.csv").display()
@@ -95,6 +95,8 @@ fn rows(path: &Path) -> Vec<String> {
                     a.value(i).to_string()
                 } else if let Some(a) = any.downcast_ref::<Float64Array>() {
                     format!("{:x}", a.value(i).to_bits())
+                } else if let Some(a) = any.downcast_ref::<Float32Array>() {
+                    format!("{:x}", a.value(i).to_bits())
                 } else if let Some(a) = any.downcast_ref::<StringArray>() {
                     a.value(i).to_string()
                 } else {
@@ -141,6 +143,13 @@ fn merged_shards_reproduce_the_single_run() {
     let cfg = config(dir.path(), "run.toml", "out");
     let single = run_split(dir.path(), &cfg, 0, "single");
     let summary = std::fs::read_to_string(single.join("summary.json")).unwrap();
+    // paths = 15: the central path and scenarios 1..=15; of 4 shards (0..10, 10..21,
+    // 21..31, 31..42) the second holds part of them and the last two none.
+    let scenarios: std::collections::BTreeSet<u32> = rows(&single.join("paths.parquet"))
+        .iter()
+        .map(|r| r.split(',').next().unwrap().parse().unwrap())
+        .collect();
+    assert_eq!(scenarios, (0..=15).collect());
 
     for shards in [1, 4] {
         let merged = run_split(dir.path(), &cfg, shards, &format!("split{shards}"));

@@ -347,7 +347,7 @@ fn period_paths_are_those_of_a_period_model() {
 fn options(folder: &Path, shard: Option<Shard>) -> OutputOptions {
     OutputOptions {
         folder: folder.to_path_buf(),
-        paths: true,
+        paths: tailspan::data::PathsOutput::All,
         compression: Compression::Zstd,
         shard,
         row_group_rows: 4000,

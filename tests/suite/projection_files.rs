@@ -10,7 +10,7 @@ use parquet::file::reader::{FileReader, SerializedFileReader};
 use parquet::record::Field;
 use projection_support::{AGES, FakeCbdSpec, cbd_pair, experience_of, log_rate_pair};
 use tailspan::data::config::Compression;
-use tailspan::data::{Sex, Span};
+use tailspan::data::{PathsOutput, Sex, Span};
 use tailspan::models::{FittedModel, MortalityModel};
 use tailspan::projection::engine::ROW_GROUP_ROWS;
 use tailspan::projection::period::complete_expectancy;
@@ -31,7 +31,7 @@ fn settings(noise: bool, uncertainty: Uncertainty, horizon: usize) -> Settings {
 fn options(folder: &Path, shard: Option<Shard>, row_group_rows: usize) -> OutputOptions {
     OutputOptions {
         folder: folder.to_path_buf(),
-        paths: true,
+        paths: PathsOutput::All,
         compression: Compression::Zstd,
         shard,
         row_group_rows,
@@ -144,17 +144,13 @@ fn files_hold_exactly_the_in_memory_scenarios() {
                         assert_eq!(sex_index(&r[1].1), sex);
                         assert_eq!(int(&r[2].1), year as i64);
                         assert_eq!(int(&r[3].1), age as i64);
-                        assert_eq!(float(&r[4].1).to_bits(), q.to_bits());
-                        if name == "cbd" {
-                            assert_eq!(names, ["scenario", "sex", "year", "age", "q"]);
-                        } else {
-                            assert_eq!(names, ["scenario", "sex", "year", "age", "q", "m"]);
-                            match &r[5].1 {
-                                Field::Null => assert_eq!(q, 1.0),
-                                Field::Double(m) => assert_eq!(*m, -(-q).ln_1p()),
-                                other => panic!("m = {other:?}"),
-                            }
+                        // q is the 64-bit rate rounded to the nearest 32-bit float.
+                        match &r[4].1 {
+                            Field::Float(f) => assert_eq!(f.to_bits(), (q as f32).to_bits()),
+                            other => panic!("q = {other:?}"),
                         }
+                        assert!(((q as f32) as f64 - q).abs() <= q * 2f64.powi(-24));
+                        assert_eq!(names, ["scenario", "sex", "year", "age", "q"]);
                     }
                 }
             }
@@ -290,7 +286,7 @@ fn central_only_run_and_skipped_paths() {
     )
     .unwrap();
     let mut opts = options(dir.path(), None, ROW_GROUP_ROWS);
-    opts.paths = false;
+    opts.paths = PathsOutput::None;
     let w = write_projection(&mut p, scenario_ids(500, false), &opts, &|_| {}).unwrap();
     assert_eq!(w.scenarios, 0..1);
     assert_eq!(w.path_rows, 0);
@@ -394,4 +390,58 @@ fn bootstrap_replicates_are_keyed_and_shared_mod_b() {
         two.generate(s, &mut b).unwrap();
         assert_eq!(a.rates(1), b.rates(1));
     }
+}
+
+#[test]
+fn first_n_paths_hold_the_central_path_and_n_scenarios_in_every_split() {
+    // output.paths = 5 keeps scenarios 0..=5 in paths.parquet; the other files keep all.
+    let dir = tempfile::tempdir().unwrap();
+    let ages_years = 2 * 5 * 56; // 2 sexes × 5 years × ages 55..=110
+    let run = |shard: Option<Shard>, threads: usize, folder: &Path| {
+        in_pool(threads, || {
+            let mut p = Projector::new(
+                log_rate_pair(110),
+                settings(true, Uncertainty::Drift, 5),
+                None,
+            )
+            .unwrap();
+            // Two scenarios a paths row group: the limit falls inside the third chunk.
+            let mut opts = options(folder, shard, 2 * ages_years);
+            opts.paths = PathsOutput::First(5);
+            write_projection(&mut p, scenario_ids(21, true), &opts, &|_| {}).unwrap()
+        })
+    };
+    let single = dir.path().join("single");
+    let whole = run(None, 1, &single);
+    assert_eq!(whole.path_rows, 6 * ages_years as u64);
+    let paths = rows(&single.join("paths.parquet"));
+    assert_eq!(paths.len(), 6 * ages_years);
+    let ids: std::collections::BTreeSet<i64> = paths.iter().map(|r| int(&r[0].1)).collect();
+    assert_eq!(ids, (0..=5).collect());
+    let factors = rows(&single.join("factors.parquet"));
+    assert_eq!(int(&factors.last().unwrap()[0].1), 21);
+    // Same bytes on 3 threads; shards together hold the same rows, a shard past the
+    // limit an empty paths part.
+    let threaded = dir.path().join("threaded");
+    run(None, 3, &threaded);
+    for stem in ["paths", "factors", "period"] {
+        let name = format!("{stem}.parquet");
+        assert!(
+            std::fs::read(single.join(&name)).unwrap()
+                == std::fs::read(threaded.join(&name)).unwrap(),
+            "{stem}: thread counts differ"
+        );
+    }
+    let sharded = dir.path().join("sharded");
+    let mut joined = Vec::new();
+    for k in 1..=4 {
+        let w = run(Some(Shard { index: k, count: 4 }), 2, &sharded);
+        let part = rows(&sharded.join(format!("paths.part-{k}-of-4.parquet")));
+        assert_eq!(part.len() as u64, w.path_rows);
+        // Shards are 0..5, 5..11, 11..16, 16..22: the second holds scenario 5 alone.
+        let expected = [5, 1, 0, 0][k - 1] * ages_years;
+        assert_eq!(part.len(), expected, "shard {k}");
+        joined.extend(part);
+    }
+    assert!(joined == paths, "shards differ from the single run");
 }

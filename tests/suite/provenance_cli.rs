@@ -7,7 +7,7 @@ use std::collections::BTreeMap;
 use std::path::Path;
 use std::process::{Command, Output};
 
-use arrow_array::{Array, Float64Array};
+use arrow_array::{Array, Float32Array, Float64Array};
 use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 use sha2::{Digest, Sha256};
 
@@ -66,10 +66,16 @@ fn metadata_of_finite_file(path: &Path) -> BTreeMap<String, String> {
     for batch in builder.build().unwrap() {
         let batch = batch.unwrap();
         for (field, column) in batch.schema().fields().iter().zip(batch.columns()) {
-            let Some(c) = column.as_any().downcast_ref::<Float64Array>() else {
-                continue;
-            };
-            for (i, v) in c.iter().enumerate() {
+            // paths.parquet holds q as a 32-bit float.
+            let values64: Vec<Option<f64>> =
+                if let Some(c) = column.as_any().downcast_ref::<Float64Array>() {
+                    c.iter().collect()
+                } else if let Some(c) = column.as_any().downcast_ref::<Float32Array>() {
+                    c.iter().map(|v| v.map(f64::from)).collect()
+                } else {
+                    continue;
+                };
+            for (i, v) in values64.into_iter().enumerate() {
                 if let Some(v) = v {
                     assert!(
                         v.is_finite(),
