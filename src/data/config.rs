@@ -70,7 +70,7 @@ pub struct DataConfig {
 pub enum KindList {
     /// One kind.
     One(ModelKind),
-    /// Several kinds, fitted and ranked; the first is projected.
+    /// Several kinds, fitted and ranked, each projected and valued side by side.
     Many(Vec<ModelKind>),
 }
 
@@ -497,7 +497,7 @@ fn check_model_weights(weights: &[f64], kinds: usize) -> std::result::Result<(),
 }
 
 impl ModelConfig {
-    /// The kinds listed, first (projected) kind first.
+    /// The kinds listed, in order (the first gives the summary's top-level figures).
     pub fn kinds(&self) -> Vec<ModelKind> {
         match &self.kind {
             KindList::One(k) => vec![*k],

@@ -277,3 +277,50 @@ fn mixture_quantiles_match_numpy() {
         );
     }
 }
+
+#[test]
+fn on_the_demo_a_cohort_model_ranks_first_and_renshaw_haberman_converges() {
+    // The demo population carries an invented cohort band (see `synth`): a cohort model
+    // must beat the period-only ones by BIC for each sex, and the Renshaw–Haberman fit
+    // with a free age loading (the default) must converge (a fit that does not is an
+    // error, exit 2).
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/demo");
+    let config = dir.path().join("fit.toml");
+    std::fs::write(
+        &config,
+        format!(
+            "[data]\nexperience = \"{}\"\nages = [55, 100]\nyears = [1975, 2024]\n\n\
+             [model]\nkind = [\"lee-carter\", \"cbd\", \"apc\", \"renshaw-haberman\"]\n\
+             max_age = 120\n\n[output]\nfolder = \"out\"\n",
+            root.join("experience.csv").display()
+        ),
+    )
+    .unwrap();
+    let (code, text) = tailspan(&["fit", config.to_str().unwrap()]);
+    assert_eq!(code, 0, "{text}");
+    let fit = json(&dir.path().join("out/fit.json"));
+    let fits = fit["fits"].as_array().unwrap();
+    for sex in ["F", "M"] {
+        let of_sex: Vec<&Value> = fits.iter().filter(|f| f["sex"] == sex).collect();
+        assert_eq!(of_sex.len(), 4, "{sex}");
+        let best = of_sex
+            .iter()
+            .min_by(|a, b| {
+                a["bic"]
+                    .as_f64()
+                    .unwrap()
+                    .total_cmp(&b["bic"].as_f64().unwrap())
+            })
+            .unwrap();
+        let name = best["model"].as_str().unwrap();
+        assert!(
+            ["apc", "renshaw-haberman"].contains(&name),
+            "{sex}: {name} ranks first"
+        );
+        assert!(
+            of_sex.iter().any(|f| f["model"] == "renshaw-haberman"),
+            "{sex}: Renshaw–Haberman fitted"
+        );
+    }
+}
