@@ -6,6 +6,14 @@
 //! younger ages) and a little cell noise, with deaths drawn Poisson from exposure × rate.
 //! Because the generating rates are known, tests can check the data against them.
 //!
+//! The population also carries an invented cohort effect, as real populations show one:
+//! the lives born in a band of years around 1935 (about 1925–1945) have lower mortality at
+//! every age than their neighbours, by up to 12 % (log m lowered by
+//! [`COHORT_DEPTH`] × exp(−((c − [`COHORT_PEAK_YEAR`]) / [`COHORT_WIDTH_YEARS`])²) for
+//! birth year c = t − x), so while the band passes through an age its rates there improve
+//! faster than the period trend alone. Cohort models (APC, Renshaw–Haberman, M6, M7) see it
+//! in the demo; period-only models cannot.
+//!
 //! Every random draw comes from a ChaCha8 stream keyed by the seed and a fixed stream
 //! number per purpose, so the files depend on the seed alone, and changing how many
 //! policies are drawn does not move the population.
@@ -48,6 +56,23 @@ pub const CELL_NOISE_SD: f64 = 0.02;
 
 /// Correlation of the two sexes' yearly trend shocks.
 pub const TREND_CORRELATION: f64 = 0.7;
+
+/// Largest lowering of log m in the invented cohort band (at its peak birth year).
+pub const COHORT_DEPTH: f64 = 0.12;
+
+/// Birth year at the centre of the invented cohort band.
+pub const COHORT_PEAK_YEAR: f64 = 1935.0;
+
+/// Half-width scale of the cohort band in years (the effect is e^-1 of its peak this far
+/// from the centre).
+pub const COHORT_WIDTH_YEARS: f64 = 6.0;
+
+/// The invented cohort effect on log m of the lives born in `birth_year` (zero far from
+/// the band, −[`COHORT_DEPTH`] at its centre).
+pub fn cohort_effect(birth_year: i32) -> f64 {
+    let z = (birth_year as f64 - COHORT_PEAK_YEAR) / COHORT_WIDTH_YEARS;
+    -COHORT_DEPTH * (-z * z).exp()
+}
 
 /// Share of the book deferred (ages 55–64, first payment at 65).
 pub const DEFERRED_SHARE: f64 = 0.10;
@@ -137,7 +162,8 @@ fn cohort_size(year: i32) -> f64 {
 pub struct SyntheticPopulation {
     /// Deaths and exposures, one population per sex (F, M), ages 50–100, years 1975–2024.
     pub experience: Experience,
-    /// Generating central rates m(x, t) per sex, ages × years, including the cell noise.
+    /// Generating central rates m(x, t) per sex, ages × years, including the cohort effect
+    /// and the cell noise.
     pub central_rates: Vec<DMatrix<f64>>,
     /// Period index k_t per sex (k is 0 in 1975).
     pub trend: Vec<Vec<f64>>,
@@ -172,8 +198,10 @@ pub fn population(seed: u64) -> Result<SyntheticPopulation> {
         for j in 0..n_years {
             for (i, age) in AGES.iter().enumerate() {
                 let noise: f64 = StandardNormal.sample(&mut noise_rng);
+                let year = YEARS.first + j as i32;
                 let log_m = base_rate(sex, age).ln()
                     + age_loading(age) * trend[s][j]
+                    + cohort_effect(year - age)
                     + CELL_NOISE_SD * noise;
                 rates[(i, j)] = log_m.exp();
             }

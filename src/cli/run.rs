@@ -8,19 +8,27 @@ use crate::cli::fit::fit_and_write;
 use crate::cli::hedge::print_hedges;
 use crate::cli::progress::Progress;
 use crate::cli::value::print_summary;
-use crate::data::Config;
+use crate::data::config::ModelKind;
+use crate::data::{Book, Config, Experience};
 use crate::error::{Error, Result};
+use crate::hedge::HedgeResults;
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
 use crate::pipeline::inputs::checked_inputs;
+use crate::io::{AtomicFile, Provenance};
+use crate::pipeline::models::{
+    ModelFiles, Staging, ValuedModel, compare_models, gather_model_files, model_options,
+};
 use crate::pipeline::{
-    LIFETIME_SCENARIOS_KEPT, ProjectedFits, ValuationSetup, ValueRequest, hedge_stage, summarize,
-    value_book, write_hedge_table,
+    LIFETIME_SCENARIOS_KEPT, ProjectedFits, ValuationOutcome, ValuationSetup, ValueRequest,
+    hedge_stage, summarize, value_book, write_hedge_table_to,
 };
 use crate::projection::engine::ROW_GROUP_ROWS;
-use crate::projection::{OutputOptions, scenario_ids, write_projection};
+use crate::projection::{OutputOptions, Projector, Written, scenario_ids, write_projection};
 use crate::report::gather::{ReportInputs, fan_probes, report_data};
+use crate::report::model_risk::model_risk;
+use crate::risk::summary::RunSummary;
 use crate::valuation::Extracts;
 
 /// Arguments of `tailspan run`.
@@ -74,12 +82,13 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     stages.done("check");
 
     let fit_set = fit_and_write(&config, &provenance, &experience)?;
-    let fits = ProjectedFits::fit(&config, &experience)?;
     stages.done("fit");
 
-    let mut projector = fits.projector(&config, &experience)?;
+    // Every listed kind goes through the same stages; with several, each writes into its
+    // own staging folder and the files are gathered with a `model` column at the end.
+    let staging = Staging::for_config(&config)?;
     let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
-    let options = OutputOptions {
+    let base_options = OutputOptions {
         folder: config.output_folder(),
         paths: config.output.paths,
         compression: config.output.compression,
@@ -87,72 +96,88 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         row_group_rows: ROW_GROUP_ROWS,
         provenance: provenance.clone(),
     };
-    let bar = Progress::new("projecting", ids.end - ids.start, quiet);
-    write_projection(&mut projector, ids.clone(), &options, &|n| bar.advance(n))?;
-    bar.finish();
-    stages.done("project");
+    let mut runs = Vec::new();
+    for kind in config.model.kinds() {
+        let context = ModelContext {
+            config: &config,
+            provenance: &provenance,
+            experience: &experience,
+            book: book.as_ref(),
+            options: model_options(&base_options, staging.as_ref(), kind),
+            label: staging.as_ref().map(|_| kind.name()),
+            quiet,
+        };
+        runs.push(run_model(&context, kind, ids.clone(), &mut stages)?);
+    }
 
+    let several = staging.is_some();
+    let mut pending = Vec::new();
+    let mut model_risk_data = None;
+    if several {
+        if book.is_some() {
+            let valued: Vec<ValuedModel<'_>> = runs
+                .iter()
+                .filter_map(|r| {
+                    r.valued.as_ref().map(|v| ValuedModel {
+                        fits: &r.fits,
+                        outcome: &v.outcome,
+                        summary: &v.summary,
+                    })
+                })
+                .collect();
+            let (models, average) = compare_models(&config, &valued)?;
+            let level = config.capital.levels.iter().copied().fold(0.0, f64::max);
+            let pairs: Vec<_> = models
+                .iter()
+                .zip(valued.iter().map(|v| v.outcome))
+                .collect();
+            model_risk_data = Some(model_risk(&pairs, &average, level)?);
+            if let Some(v) = runs[0].valued.as_mut() {
+                v.summary.models = Some(models);
+                v.summary.model_average = Some(average);
+            }
+        }
+        let files = runs
+            .iter_mut()
+            .map(|r| ModelFiles {
+                model: r.fits.kind,
+                written: r.written.files.clone(),
+                pending: r
+                    .valued
+                    .as_mut()
+                    .map(|v| std::mem::take(&mut v.files))
+                    .unwrap_or_default(),
+            })
+            .collect();
+        pending = gather_model_files(&config, &provenance, files)?;
+        stages.done("gather");
+    }
+    let mut first = runs.swap_remove(0);
+    drop(runs);
     let mut summary = None;
     let mut outcome = None;
     let mut hedges = None;
     let mut probe_offset = 0;
-    if let Some(book) = book {
-        let setup = ValuationSetup::new(&config, book, &projector)?;
-        let mut probes = Vec::new();
-        if let Some(h) = &config.hedge {
-            probes.extend(ReferenceCells::of(h).cells);
-        }
-        probe_offset = probes.len();
-        probes.extend(fan_probes(&config, &projector));
-        // The charts draw the first stochastic scenarios (and the central path).
-        let extracts = Extracts {
-            probes,
-            every_scenario: probe_offset,
-            period: true,
-            charts_end: ids.start.max(1) + LIFETIME_SCENARIOS_KEPT as u64,
-        };
-        let request = ValueRequest {
-            ids,
-            options: &options,
-            hedges: config.hedge.as_ref(),
-            report: true,
-            extracts: &extracts,
-        };
-        let bar = Progress::new("valuing", request.ids.end - request.ids.start, quiet);
-        let (valued, files) =
-            value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;
-        bar.finish();
-        stages.done("value");
-        let mut figures = summarize(
-            &config,
-            &provenance,
-            &fits,
-            &experience,
-            &setup,
-            &projector,
-            &valued,
-        )?;
-        stages.done("capital");
-        let mut hedge_file = None;
-        if let Some(h) = &config.hedge {
-            let results = hedge_stage(&config, h, &setup, &valued)?;
-            hedge_file = Some(write_hedge_table(&config, &provenance, &results, &valued)?);
-            figures.hedges = Some(serde_json::to_value(&results.summary).map_err(|e| {
-                Error::Numerical(format!("hedge summary could not be written: {e}"))
-            })?);
-            hedges = Some(results);
-            stages.done("hedge");
-        }
+    if let Some(valued) = first.valued.take() {
         retire_stale_records(&config.output_folder(), &provenance)?;
-        for file in files.into_iter().chain(hedge_file) {
+        for file in valued.files.into_iter().chain(pending) {
             file.commit()?;
         }
-        write_json(config.output_folder().join("summary.json"), &figures)?;
-        summary = Some(figures);
-        outcome = Some(valued);
+        write_json(config.output_folder().join("summary.json"), &valued.summary)?;
+        summary = Some(valued.summary);
+        outcome = Some(valued.outcome);
+        hedges = valued.hedges;
+        probe_offset = valued.probe_offset;
+    } else {
+        retire_stale_records(&config.output_folder(), &provenance)?;
+        for file in pending {
+            file.commit()?;
+        }
     }
+    drop(staging);
+    let projector = first.projector;
 
-    let data = report_data(&ReportInputs {
+    let mut data = report_data(&ReportInputs {
         config: &config,
         experience: &experience,
         fits: &fit_set,
@@ -164,6 +189,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         provenance: &provenance,
         run_at,
     })?;
+    data.model_risk = model_risk_data;
     let report = config.output_folder().join("report.html");
     crate::report::write(&report, &data)?;
     stages.done("report");
@@ -177,6 +203,136 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut out = std::io::stdout().lock();
     writeln!(out, "results in {}", config.output_folder().display())
         .map_err(|e| Error::io("standard output", e))
+}
+
+/// What every kind's stages share.
+struct ModelContext<'a> {
+    config: &'a Config,
+    provenance: &'a Provenance,
+    experience: &'a Experience,
+    book: Option<&'a Book>,
+    /// Where this kind writes (its staging folder in a multi-model run).
+    options: OutputOptions,
+    /// The kind's name on the progress bars when several are run.
+    label: Option<&'static str>,
+    quiet: bool,
+}
+
+/// One kind's valuation: its files (uncommitted), figures and hedges.
+struct ModelValuation {
+    outcome: ValuationOutcome,
+    files: Vec<AtomicFile>,
+    summary: RunSummary,
+    hedges: Option<HedgeResults>,
+    probe_offset: usize,
+}
+
+/// One kind's run: fits, projector, projection files, and valuation when there is a book.
+struct ModelRun {
+    fits: ProjectedFits,
+    projector: Projector,
+    written: Written,
+    valued: Option<ModelValuation>,
+}
+
+/// Fits, projects and (with a book) values one kind, prices its hedges and summarises it,
+/// exactly as a run of that kind alone does.
+fn run_model(
+    cx: &ModelContext<'_>,
+    kind: ModelKind,
+    ids: std::ops::Range<u64>,
+    stages: &mut Stages,
+) -> Result<ModelRun> {
+    let config = cx.config;
+    let stage = |name: &str| match cx.label {
+        Some(model) => format!("{name} {model}"),
+        None => name.to_string(),
+    };
+    let fits = ProjectedFits::fit_kind(config, cx.experience, kind)?;
+    let mut projector = fits.projector(config, cx.experience)?;
+    let bar = Progress::new(&stage("projecting"), ids.end - ids.start, cx.quiet);
+    let written = write_projection(&mut projector, ids.clone(), &cx.options, &|n| {
+        bar.advance(n)
+    })?;
+    bar.finish();
+    stages.done("project");
+    let Some(book) = cx.book else {
+        return Ok(ModelRun {
+            fits,
+            projector,
+            written,
+            valued: None,
+        });
+    };
+    let setup = ValuationSetup::new(config, book.clone(), &projector)?;
+    let mut probes = Vec::new();
+    if let Some(h) = &config.hedge {
+        probes.extend(ReferenceCells::of(h).cells);
+    }
+    let probe_offset = probes.len();
+    probes.extend(fan_probes(config, &projector));
+    // The charts draw the first stochastic scenarios (and the central path).
+    let extracts = Extracts {
+        probes,
+        every_scenario: probe_offset,
+        period: true,
+        charts_end: ids.start.max(1) + LIFETIME_SCENARIOS_KEPT as u64,
+    };
+    let request = ValueRequest {
+        ids,
+        options: &cx.options,
+        hedges: config.hedge.as_ref(),
+        report: true,
+        extracts: &extracts,
+    };
+    let bar = Progress::new(
+        &stage("valuing"),
+        request.ids.end - request.ids.start,
+        cx.quiet,
+    );
+    let (outcome, mut files) =
+        value_book(config, &setup, &projector, &request, &|n| bar.advance(n))?;
+    bar.finish();
+    stages.done("value");
+    let mut summary = summarize(
+        config,
+        cx.provenance,
+        &fits,
+        cx.experience,
+        &setup,
+        &projector,
+        &outcome,
+    )?;
+    stages.done("capital");
+    let mut hedges = None;
+    if let Some(h) = &config.hedge {
+        let results = hedge_stage(config, h, &setup, &outcome)?;
+        files.push(write_hedge_table_to(
+            &cx.options.folder.join("hedge.parquet"),
+            config,
+            cx.provenance,
+            &results,
+            &outcome,
+        )?);
+        summary.hedges =
+            Some(serde_json::to_value(&results.summary).map_err(|e| {
+                Error::Numerical(format!("hedge summary could not be written: {e}"))
+            })?);
+        hedges = Some(results);
+        stages.done("hedge");
+    }
+    Ok(ModelRun {
+        fits,
+        projector,
+        written,
+        valued: Some(ModelValuation {
+            outcome,
+            files,
+            summary,
+            hedges,
+            probe_offset,
+        }),
+    })
 }
 
 /// The current time in UTC as ISO 8601, from the system clock, or the time that

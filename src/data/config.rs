@@ -82,7 +82,7 @@ pub struct DataConfig {
 pub enum KindList {
     /// One kind.
     One(ModelKind),
-    /// Several kinds, fitted and ranked; the first is projected.
+    /// Several kinds, fitted and ranked, each projected and valued side by side.
     Many(Vec<ModelKind>),
 }
 
@@ -218,6 +218,10 @@ pub struct ModelConfig {
     /// Time-series model of the cohort index.
     #[serde(default = "default_cohort_series")]
     pub cohort_series: CohortSeriesKind,
+    /// Weights of the listed kinds in the model-averaged distribution, in `kind`'s order
+    /// (default: BIC weights).
+    #[serde(default)]
+    pub weights: Option<Vec<f64>>,
 }
 
 /// Parameter uncertainty switch: `true`/`false` or a named method.
@@ -459,6 +463,7 @@ impl Default for ModelConfig {
             cohort_loading: default_cohort_loading(),
             min_cohort_cells: default_min_cohort_cells(),
             cohort_series: default_cohort_series(),
+            weights: None,
         }
     }
 }
@@ -514,8 +519,33 @@ impl Default for OutputConfig {
     }
 }
 
+/// Checks `model.weights` against the number of kinds listed: one non-negative finite
+/// weight per kind, with a positive sum.
+fn check_model_weights(weights: &[f64], kinds: usize) -> std::result::Result<(), String> {
+    if weights.len() != kinds {
+        return Err(format!(
+            "gives {} weights for {kinds} model kinds in `model.kind`: one per kind, in order",
+            weights.len()
+        ));
+    }
+    if let Some((i, w)) = weights
+        .iter()
+        .enumerate()
+        .find(|(_, w)| !(w.is_finite() && **w >= 0.0))
+    {
+        return Err(format!(
+            "weight {} is {w}: weights must be finite and non-negative",
+            i + 1
+        ));
+    }
+    if weights.iter().sum::<f64>() <= 0.0 {
+        return Err("weights must have a positive sum".to_string());
+    }
+    Ok(())
+}
+
 impl ModelConfig {
-    /// The kinds listed, first (projected) kind first.
+    /// The kinds listed, in order (the first gives the summary's top-level figures).
     pub fn kinds(&self) -> Vec<ModelKind> {
         match &self.kind {
             KindList::One(k) => vec![*k],
@@ -719,6 +749,20 @@ impl Config {
         let kinds = m.kinds();
         if kinds.is_empty() {
             return Err(self.err("model.kind", "must name at least one model"));
+        }
+        if let Some((i, kind)) = kinds
+            .iter()
+            .enumerate()
+            .find(|(i, k)| kinds[..*i].contains(k))
+        {
+            return Err(self.err(
+                "model.kind",
+                format!("lists `{}` twice (entry {})", kind.name(), i + 1),
+            ));
+        }
+        if let Some(weights) = &m.weights {
+            check_model_weights(weights, kinds.len())
+                .map_err(|rule| self.err("model.weights", rule))?;
         }
         if m.fit == Some(FitMethod::Binomial) && kinds.contains(&ModelKind::LeeCarter) {
             return Err(self.err(
@@ -943,6 +987,45 @@ years = [1975, 2024]
         let defaults = Config::parse(MINIMAL, Path::new("c.toml")).unwrap().model;
         assert_eq!(defaults.min_cohort_cells, 3);
         assert_eq!(defaults.cohort_loading, CohortLoading::Free);
+    }
+
+    #[test]
+    fn model_weights_are_checked_against_the_kinds() {
+        let parse = |model: &str| {
+            Config::parse(
+                &format!("{MINIMAL}\n[model]\n{model}\n"),
+                Path::new("c.toml"),
+            )
+        };
+        let ok = parse("kind = [\"lee-carter\", \"cbd\"]\nweights = [1, 3]").unwrap();
+        assert_eq!(ok.model.weights, Some(vec![1.0, 3.0]));
+        for (model, piece) in [
+            (
+                "kind = [\"lee-carter\", \"cbd\"]\nweights = [1]",
+                "gives 1 weights for 2",
+            ),
+            (
+                "kind = [\"lee-carter\", \"cbd\"]\nweights = [1, -1]",
+                "weight 2 is -1",
+            ),
+            (
+                "kind = [\"lee-carter\", \"cbd\"]\nweights = [0, 0]",
+                "positive sum",
+            ),
+        ] {
+            let err = parse(model).unwrap_err().to_string();
+            assert!(
+                err.contains("model.weights") && err.contains(piece),
+                "{err}"
+            );
+        }
+        let err = parse("kind = [\"cbd\", \"lee-carter\", \"cbd\"]")
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("model.kind") && err.contains("`cbd` twice"),
+            "{err}"
+        );
     }
 
     #[test]

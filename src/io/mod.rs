@@ -7,6 +7,7 @@ pub mod atomic;
 pub mod finite;
 pub mod hash;
 pub mod memory;
+pub mod model_column;
 pub mod parquet;
 pub mod provenance;
 pub mod spill;

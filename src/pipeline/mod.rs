@@ -5,8 +5,10 @@
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
 pub mod inputs;
+pub mod models;
 
 use std::ops::Range;
+use std::path::Path;
 use std::sync::Arc;
 
 use arrow_array::{ArrayRef, Float64Array, StringArray, UInt32Array};
@@ -51,7 +53,15 @@ pub struct ProjectedFits {
 impl ProjectedFits {
     /// Fits the first configured model kind to each sex of `experience`.
     pub fn fit(config: &Config, experience: &Experience) -> Result<Self> {
-        let kind = config.model.kinds()[0];
+        Self::fit_kind(config, experience, config.model.kinds()[0])
+    }
+
+    /// Fits the configured model of `kind` to each sex of `experience`.
+    pub fn fit_kind(
+        config: &Config,
+        experience: &Experience,
+        kind: crate::data::config::ModelKind,
+    ) -> Result<Self> {
         let mut fits = Vec::new();
         let mut specs: Vec<Arc<dyn MortalityModel>> = Vec::new();
         for population in &experience.populations {
@@ -442,6 +452,8 @@ pub fn summarize(
         standard_stress: StressFigures::new(decrease, best_estimate, stressed),
         one_year,
         hedges: None,
+        models: None,
+        model_average: None,
     })
 }
 
@@ -503,6 +515,18 @@ pub fn write_hedge_table(
     results: &HedgeResults,
     outcome: &ValuationOutcome,
 ) -> Result<AtomicFile> {
+    let path = config.output_folder().join("hedge.parquet");
+    write_hedge_table_to(&path, config, provenance, results, outcome)
+}
+
+/// Writes the hedge table to `path` (a model's staging folder in a multi-model run).
+pub fn write_hedge_table_to(
+    path: &Path,
+    config: &Config,
+    provenance: &Provenance,
+    results: &HedgeResults,
+    outcome: &ValuationOutcome,
+) -> Result<AtomicFile> {
     let schema = Arc::new(Schema::new(vec![
         Field::new("scenario", DataType::UInt32, false),
         Field::new("contract", DataType::Utf8, false),
@@ -510,9 +534,8 @@ pub fn write_hedge_table(
         Field::new("floating_leg", DataType::Float64, false),
         Field::new("net", DataType::Float64, false),
     ]));
-    let path = config.output_folder().join("hedge.parquet");
     let mut sink = ParquetSink::create(
-        &path,
+        path,
         schema,
         config.output.compression,
         HEDGE_DESCRIPTION,

@@ -38,6 +38,49 @@ pub struct ReportData {
     pub capital: Option<CapitalTable>,
     /// Hedge comparison, one row per contract; empty leaves the table out.
     pub hedges: Vec<HedgeRow>,
+    /// Several models side by side; `None` leaves the model-risk section out.
+    pub model_risk: Option<ModelRisk>,
+}
+
+/// Model risk: each valued model's fit, weight and figures, the mixture's, and the
+/// models' PV distributions over common bins.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ModelRisk {
+    /// What the values are, e.g. `trend only`.
+    pub label: String,
+    /// Where the weights came from, as shown (`BIC` or `model.weights`).
+    pub weights_from: String,
+    /// Confidence level of the VaR and capital shown.
+    pub level: f64,
+    /// One row per model, in the config's order.
+    pub models: Vec<ModelRiskRow>,
+    /// The weighted mixture's row (its `bic` is `None`, its weight 1).
+    pub average: ModelRiskRow,
+    /// Largest less smallest best estimate.
+    pub best_estimate_spread: f64,
+    /// Smallest and largest PV over all models: the bins' range.
+    pub range: (f64, f64),
+}
+
+/// One model's (or the mixture's) figures in the model-risk table and chart.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ModelRiskRow {
+    /// Model kind, or `model average`.
+    pub model: String,
+    /// BIC summed over sexes.
+    pub bic: Option<f64>,
+    /// Weight in the average.
+    pub weight: f64,
+    /// Best estimate.
+    pub best_estimate: f64,
+    /// VaR at `level`.
+    pub var: f64,
+    /// TVaR at `level`.
+    pub tvar: f64,
+    /// VaR − best estimate.
+    pub capital: f64,
+    /// Share of the model's scenarios in each common bin (empty for the average).
+    pub shares: Vec<f64>,
 }
 
 /// Run metadata: what was run, on what, and when.

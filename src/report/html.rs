@@ -85,6 +85,7 @@ struct Section {
 pub fn page(data: &ReportData) -> Result<String> {
     let sections: Vec<Section> = [
         capital_section(data)?,
+        model_risk_section(data)?,
         hedge_section(&data.hedges, &data.currency),
         projection_section(data)?,
         lifetime_section(&data.lifetimes)?,
@@ -326,6 +327,81 @@ fn capital_tables(t: &CapitalTable, currency: &str) -> String {
         out.push_str("</tbody>\n</table>\n");
     }
     out
+}
+
+/// Several models side by side: a table of fit, weight, BE, VaR and capital, and their PV
+/// distributions overlaid.
+fn model_risk_section(data: &ReportData) -> Result<Option<Section>> {
+    let Some(risk) = &data.model_risk else {
+        return Ok(None);
+    };
+    let level = format::level(risk.level);
+    let var_head = format!("#VaR {level}");
+    let tvar_head = format!("#TVaR {level}");
+    let mut body = table_head(
+        Some(&format!(
+            "Amounts in {}; {}; weights from {}. The average's VaR is the smallest PV at \
+             which the weighted models' distribution functions reach the level.",
+            data.currency, risk.label, risk.weights_from
+        )),
+        &[
+            "Model",
+            "#BIC (sum over sexes)",
+            "#Weight",
+            "#Best estimate",
+            &var_head,
+            &tvar_head,
+            "#Capital (VaR − BE)",
+            "#% of BE",
+        ],
+    );
+    for (r, class) in risk
+        .models
+        .iter()
+        .map(|r| (r, None))
+        .chain(std::iter::once((&risk.average, Some("key"))))
+    {
+        body.push_str(&row(
+            &r.model,
+            &[
+                r.bic.map_or(String::new(), |b| fixed(b, 1)),
+                fixed(r.weight, 3),
+                amount(r.best_estimate),
+                amount(r.var),
+                amount(r.tvar),
+                amount(r.capital),
+                percent(r.capital / r.best_estimate, 2),
+            ],
+            class,
+        ));
+    }
+    body.push_str(&row(
+        "Spread of best estimates (largest − smallest)",
+        &[
+            String::new(),
+            String::new(),
+            amount(risk.best_estimate_spread),
+            String::new(),
+            String::new(),
+            String::new(),
+            percent(risk.best_estimate_spread / risk.average.best_estimate, 2),
+        ],
+        None,
+    ));
+    body.push_str("</tbody>\n</table>\n");
+    if risk.models.iter().any(|m| !m.shares.is_empty()) {
+        let svg = charts::models_chart(risk, &data.currency)?;
+        body.push_str(&figure(
+            &svg,
+            &charts::models_title(risk),
+            Some("Each model's scenarios on the same scenario streams, over common bins."),
+        ));
+    }
+    Ok(Some(Section {
+        id: "model-risk",
+        heading: "Model risk",
+        body,
+    }))
 }
 
 fn hedge_section(hedges: &[HedgeRow], currency: &str) -> Option<Section> {

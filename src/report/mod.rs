@@ -12,6 +12,7 @@ mod example;
 pub mod format;
 pub mod gather;
 pub mod html;
+pub mod model_risk;
 
 use std::path::Path;
 

@@ -343,6 +343,7 @@ pub struct Merged {
 /// the other whole files beside them and returns the run's summary (the caller writes it).
 /// Nothing is renamed into place unless every check and the summary succeed.
 pub fn merge_folder(folder: &Path, config: &Config) -> Result<Merged> {
+    crate::pipeline::models::refuse_sharded_models(config, true)?;
     let parts = find_parts(folder)?;
     let all = scenario_ids(config.projection.scenarios, config.projection.noise);
     let blocks = (1..=parts.count)

@@ -5,6 +5,7 @@
 
 pub mod capital;
 pub mod merge;
+pub mod model_average;
 pub mod one_year;
 pub mod order;
 pub mod quantile;

@@ -83,4 +83,11 @@ pub struct RunSummary {
     /// Hedge prices and effectiveness, when hedges are configured.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub hedges: Option<serde_json::Value>,
+    /// Every valued model's fit quality, weight and figures, when several kinds are valued
+    /// (the figures above are the first kind's).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub models: Option<Vec<crate::risk::model_average::ModelFigures>>,
+    /// The weighted mixture of the valued models' distributions.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub model_average: Option<crate::risk::model_average::ModelAverage>,
 }

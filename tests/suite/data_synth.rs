@@ -60,8 +60,8 @@ fn deaths_are_poisson_around_the_generating_rates() {
 }
 
 #[test]
-fn crude_rates_follow_makeham_times_trend() {
-    // Against the noise-free surface m̃ = m_Makeham(x) · exp(b_x k_t): D is Poisson with
+fn crude_rates_follow_makeham_times_trend_and_cohort() {
+    // Against the noise-free surface m̃ = m_Makeham(x) · exp(b_x k_t + γ_{t−x}): D is Poisson with
     // a lognormally scattered mean λ = E m̃ e^{σε}, so Var D = E[λ] + Var[λ] with
     // E[λ] = E m̃ e^{σ²/2} and Var[λ] = (E m̃)² e^{σ²} (e^{σ²} − 1) (lognormal moments).
     let pop = population();
@@ -69,8 +69,9 @@ fn crude_rates_follow_makeham_times_trend() {
     let (mean, worst, smallest, n) = pearson(&pop, |s, i, j| {
         let p = &pop.experience.populations[s];
         let age = p.ages.first + i as i32;
-        let smooth =
-            synth::base_rate(p.sex, age) * (synth::age_loading(age) * pop.trend[s][j]).exp();
+        let year = p.years.first + j as i32;
+        let smooth = synth::base_rate(p.sex, age)
+            * (synth::age_loading(age) * pop.trend[s][j] + synth::cohort_effect(year - age)).exp();
         let base = p.exposure[(i, j)] * smooth;
         let mu = base * (s2 / 2.0).exp();
         (mu, mu + base * base * s2.exp() * s2.exp_m1())
@@ -83,14 +84,16 @@ fn crude_rates_follow_makeham_times_trend() {
 }
 
 #[test]
-fn generating_rates_are_makeham_times_trend_plus_small_noise() {
+fn generating_rates_are_makeham_times_trend_and_cohort_plus_small_noise() {
     let pop = population();
     let mut residuals = Vec::new();
     for (s, p) in pop.experience.populations.iter().enumerate() {
         for (i, age) in p.ages.iter().enumerate() {
             for j in 0..p.years.len() {
-                let smooth =
-                    synth::base_rate(p.sex, age).ln() + synth::age_loading(age) * pop.trend[s][j];
+                let year = p.years.first + j as i32;
+                let smooth = synth::base_rate(p.sex, age).ln()
+                    + synth::age_loading(age) * pop.trend[s][j]
+                    + synth::cohort_effect(year - age);
                 residuals.push(pop.central_rates[s][(i, j)].ln() - smooth);
             }
         }
@@ -253,4 +256,14 @@ fn shipped_demo_files_are_the_default_synth_output() {
             "configs/demo/{file} differs from `tailspan synth --out configs/demo`"
         );
     }
+}
+
+#[test]
+fn the_invented_cohort_band_lowers_mortality_around_its_centre() {
+    // The effect is a Gaussian dip in birth year (the module's documented shape).
+    assert!((synth::cohort_effect(1935) + synth::COHORT_DEPTH).abs() < 1e-15);
+    let e1 = synth::cohort_effect(1941);
+    assert!((e1 + synth::COHORT_DEPTH * (-1.0f64).exp()).abs() < 1e-15);
+    assert_eq!(synth::cohort_effect(1929), e1);
+    assert!(synth::cohort_effect(1880).abs() < 1e-12);
 }

@@ -19,6 +19,7 @@ mod life_cli;
 mod life_properties;
 mod life_tables;
 mod merge_cli;
+mod model_risk_cli;
 mod models_closure;
 mod models_cohort_fit;
 mod models_cohort_recovery;

@@ -8,10 +8,12 @@
 pub mod fan;
 pub mod heatmap;
 pub mod histogram;
+pub mod models;
 
 pub use fan::fan_chart;
 pub use heatmap::residual_heatmap;
 pub use histogram::{lifetime_chart, lifetime_title, pv_chart, pv_title};
+pub use models::{models_chart, models_title};
 
 use plotters::coord::Shift;
 use plotters::element::DashedPathElement;
