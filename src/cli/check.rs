@@ -31,6 +31,7 @@ pub fn summary(path: &Path) -> Result<String> {
     let config = Config::load(path)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?;
+    crate::pipeline::allocation::candidate_book(&config, book.as_ref())?;
     let curve =
         if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
             Some(DiscountCurve::from_config(&config)?)

@@ -70,6 +70,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let provenance = crate::pipeline::provenance(&config)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?;
+    let candidate = crate::pipeline::allocation::candidate_book(&config, book.as_ref())?;
     if book.is_some() {
         crate::interest::DiscountCurve::from_config(&config)?;
     }
@@ -135,6 +136,18 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             &valued,
         )?;
         stages.done("capital");
+        let allocation_file = crate::pipeline::allocation::allocation_stage(
+            &config,
+            &provenance,
+            &setup,
+            &projector,
+            &valued,
+            &mut figures,
+            candidate.as_ref(),
+        )?;
+        if allocation_file.is_some() {
+            stages.done("allocation");
+        }
         let mut hedge_file = None;
         if let Some(h) = &config.hedge {
             let results = hedge_stage(&config, h, &setup, &valued)?;
@@ -146,7 +159,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             stages.done("hedge");
         }
         retire_stale_records(&config.output_folder(), &provenance)?;
-        for file in files.into_iter().chain(hedge_file) {
+        for file in files.into_iter().chain(hedge_file).chain(allocation_file) {
             file.commit()?;
         }
         write_json(config.output_folder().join("summary.json"), &figures)?;

@@ -41,6 +41,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
             "`tailspan value` needs a book to value",
         )
     })?;
+    let candidate = crate::pipeline::allocation::candidate_book(&config, Some(&book))?;
     let fits = ProjectedFits::fit(&config, &experience)?;
     let mut projector = fits.projector(&config, &experience)?;
     let setup = ValuationSetup::new(&config, book, &projector)?;
@@ -68,7 +69,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     };
     let (outcome, files) = value_book(&config, &setup, &projector, &request, &|n| bar.advance(n))?;
     bar.finish();
-    let summary = match shard {
+    let mut summary = match shard {
         Some(_) => None,
         None => Some(summarize(
             &config,
@@ -80,10 +81,23 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
             &outcome,
         )?),
     };
+    // Allocation replays the whole run's tail, so only a whole run has it.
+    let allocation_file = match summary.as_mut() {
+        Some(figures) => crate::pipeline::allocation::allocation_stage(
+            &config,
+            &provenance,
+            &setup,
+            &projector,
+            &outcome,
+            figures,
+            candidate.as_ref(),
+        )?,
+        None => None,
+    };
     if shard.is_none() {
         retire_stale_records(&config.output_folder(), &provenance)?;
     }
-    for file in files {
+    for file in files.into_iter().chain(allocation_file) {
         file.commit()?;
     }
     if let Some(summary) = &summary {

@@ -4,6 +4,8 @@
 //! model fitted to each sex, a projector over the joint basis — and must build them the same
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
+pub mod allocation;
+
 use std::ops::Range;
 use std::sync::Arc;
 
@@ -334,6 +336,9 @@ pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
     if let Some(curve) = &config.valuation.curve {
         paths.push(("curve", config.resolve(curve)));
     }
+    if let Some(candidate) = &config.data.candidate_book {
+        paths.push(("candidate_book", config.resolve(candidate)));
+    }
     paths.iter().map(|(role, p)| hash_file(role, p)).collect()
 }
 
@@ -438,6 +443,7 @@ pub fn summarize(
         standard_stress: StressFigures::new(decrease, best_estimate, stressed),
         one_year,
         hedges: None,
+        allocation: None,
     })
 }
 

@@ -38,6 +38,10 @@ pub struct ReportData {
     pub capital: Option<CapitalTable>,
     /// Hedge comparison, one row per contract; empty leaves the table out.
     pub hedges: Vec<HedgeRow>,
+    /// Capital allocated to segments (and a tranche's marginal capital); `None` leaves
+    /// the section out.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
 }
 
 /// Run metadata: what was run, on what, and when.

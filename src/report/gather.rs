@@ -109,6 +109,7 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> Result<ReportData> {
         present_values: None,
         capital: None,
         hedges: Vec::new(),
+        allocation: inputs.summary.and_then(|s| s.allocation.clone()),
     };
     if let Some(outcome) = inputs.outcome {
         data.fans = fans(inputs, outcome);

@@ -83,4 +83,8 @@ pub struct RunSummary {
     /// Hedge prices and effectiveness, when hedges are configured.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub hedges: Option<serde_json::Value>,
+    /// Capital allocated to segments, and a tranche's marginal capital, when
+    /// `capital.allocation` is on.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
 }
