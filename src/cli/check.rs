@@ -36,6 +36,7 @@ pub fn summary(path: &Path) -> Result<String> {
         book,
         curve,
     } = checked_inputs(&config)?;
+    crate::pipeline::allocation::candidate_book(&config, book.as_ref())?;
 
     let mut s = String::new();
     // Writing to a String cannot fail.

@@ -79,6 +79,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let provenance = crate::pipeline::provenance(&config)?;
     let inputs = checked_inputs(&config)?;
     let (experience, book) = (inputs.experience, inputs.book);
+    let candidate = crate::pipeline::allocation::candidate_book(&config, book.as_ref())?;
     stages.done("check");
 
     let fit_set = fit_and_write(&config, &provenance, &experience)?;
@@ -103,6 +104,8 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             provenance: &provenance,
             experience: &experience,
             book: book.as_ref(),
+            candidate: candidate.as_ref(),
+            allocate: runs.is_empty(),
             options: model_options(&base_options, staging.as_ref(), kind),
             label: staging.as_ref().map(|_| kind.name()),
             quiet,
@@ -160,7 +163,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut probe_offset = 0;
     if let Some(valued) = first.valued.take() {
         retire_stale_records(&config.output_folder(), &provenance)?;
-        for file in valued.files.into_iter().chain(pending) {
+        for file in valued.files.into_iter().chain(pending).chain(valued.allocation) {
             file.commit()?;
         }
         write_json(config.output_folder().join("summary.json"), &valued.summary)?;
@@ -211,6 +214,11 @@ struct ModelContext<'a> {
     provenance: &'a Provenance,
     experience: &'a Experience,
     book: Option<&'a Book>,
+    /// A tranche to price beside the book (`data.candidate_book`).
+    candidate: Option<&'a Book>,
+    /// Whether this kind's capital is allocated: the first kind's, as the top-level
+    /// figures are.
+    allocate: bool,
     /// Where this kind writes (its staging folder in a multi-model run).
     options: OutputOptions,
     /// The kind's name on the progress bars when several are run.
@@ -222,6 +230,8 @@ struct ModelContext<'a> {
 struct ModelValuation {
     outcome: ValuationOutcome,
     files: Vec<AtomicFile>,
+    /// `allocation.parquet`, written beside the gathered files, never given a model column.
+    allocation: Option<AtomicFile>,
     summary: RunSummary,
     hedges: Option<HedgeResults>,
     probe_offset: usize,
@@ -304,6 +314,21 @@ fn run_model(
         &outcome,
     )?;
     stages.done("capital");
+    let allocation = match cx.allocate {
+        true => crate::pipeline::allocation::allocation_stage(
+            config,
+            cx.provenance,
+            &setup,
+            &projector,
+            &outcome,
+            &mut summary,
+            cx.candidate,
+        )?,
+        false => None,
+    };
+    if allocation.is_some() {
+        stages.done("allocation");
+    }
     let mut hedges = None;
     if let Some(h) = &config.hedge {
         let results = hedge_stage(config, h, &setup, &outcome)?;
@@ -328,6 +353,7 @@ fn run_model(
         valued: Some(ModelValuation {
             outcome,
             files,
+            allocation,
             summary,
             hedges,
             probe_offset,

@@ -48,6 +48,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
             "`tailspan value` needs a book to value",
         )
     })?;
+    let candidate = crate::pipeline::allocation::candidate_book(&config, Some(&book))?;
     refuse_sharded_models(&config, shard.is_some())?;
     let staging = Staging::for_config(&config)?;
     let base_options = OutputOptions {
@@ -65,6 +66,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     };
     // Every listed kind is valued the same way, on the same scenario streams.
     let mut valued = Vec::new();
+    let mut allocation_file = None;
     for kind in config.model.kinds() {
         let fits = ProjectedFits::fit_kind(&config, &experience, kind)?;
         let mut projector = fits.projector(&config, &experience)?;
@@ -98,6 +100,22 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
                 &outcome,
             )?),
         };
+        let mut summary = summary;
+        // Allocation replays the whole run's tail, so only a whole run has it; with several
+        // kinds it follows the first, as the top-level figures do.
+        if valued.is_empty()
+            && let Some(figures) = summary.as_mut()
+        {
+            allocation_file = crate::pipeline::allocation::allocation_stage(
+                &config,
+                &provenance,
+                &setup,
+                &projector,
+                &outcome,
+                figures,
+                candidate.as_ref(),
+            )?;
+        }
         valued.push((fits, outcome, files, summary));
     }
     let (summary, files) = if staging.is_some() {
@@ -133,7 +151,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     if shard.is_none() {
         retire_stale_records(&config.output_folder(), &provenance)?;
     }
-    for file in files {
+    for file in files.into_iter().chain(allocation_file) {
         file.commit()?;
     }
     drop(valued);

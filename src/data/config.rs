@@ -67,6 +67,10 @@ pub struct DataConfig {
     /// Book CSV (`id,sex,age,amount,...`); optional for fit/project-only runs.
     #[serde(default)]
     pub book: Option<PathBuf>,
+    /// A candidate tranche (same layout as the book) whose marginal capital against the
+    /// book is reported when `capital.allocation` is on.
+    #[serde(default)]
+    pub candidate_book: Option<PathBuf>,
     /// Fitted ages, inclusive `[first, last]`.
     pub ages: [i32; 2],
     /// Fitted calendar years, inclusive `[first, last]`.
@@ -346,6 +350,20 @@ pub struct CapitalConfig {
     /// Scenarios for the one-year capital.
     #[serde(default = "default_one_year_scenarios")]
     pub one_year_scenarios: usize,
+    /// Allocate the capital to policies and segments (`allocation.parquet`).
+    #[serde(default)]
+    pub allocation: bool,
+    /// Annual cost-of-capital rate for a tranche's premium figures.
+    #[serde(default = "default_cost_of_capital_rate")]
+    pub cost_of_capital_rate: f64,
+}
+
+/// Default `capital.cost_of_capital_rate`: 6 % a year, the Solvency II risk margin's rate
+/// (Delegated Regulation (EU) 2015/35, Art. 39; from memory).
+pub const DEFAULT_COST_OF_CAPITAL_RATE: f64 = 0.06;
+
+fn default_cost_of_capital_rate() -> f64 {
+    DEFAULT_COST_OF_CAPITAL_RATE
 }
 
 /// Parquet compression codec.
@@ -505,6 +523,8 @@ impl Default for CapitalConfig {
             standard_stress: default_stress(),
             one_year: false,
             one_year_scenarios: default_one_year_scenarios(),
+            allocation: false,
+            cost_of_capital_rate: default_cost_of_capital_rate(),
         }
     }
 }
@@ -916,10 +936,49 @@ impl Config {
         if c.one_year && c.one_year_scenarios == 0 {
             return Err(self.err("capital.one_year_scenarios", "must be at least 1"));
         }
+        self.check_allocation()?;
         if let Some(hedge) = &self.hedge {
             hedge.check(self)?;
             if !p.noise {
                 return Err(self.err("projection.noise", HEDGES_NEED_NOISE));
+            }
+        }
+        Ok(())
+    }
+}
+
+impl Config {
+    /// Checks the allocation keys: a tranche needs the allocation, and the allocation needs
+    /// stochastic scenarios and a book.
+    fn check_allocation(&self) -> Result<()> {
+        let c = &self.capital;
+        if !(c.cost_of_capital_rate.is_finite() && (0.0..1.0).contains(&c.cost_of_capital_rate)) {
+            return Err(self.err(
+                "capital.cost_of_capital_rate",
+                format!(
+                    "must be a fraction in [0, 1) such as 0.06 for 6 %, found {}",
+                    c.cost_of_capital_rate
+                ),
+            ));
+        }
+        if self.data.candidate_book.is_some() && !c.allocation {
+            return Err(self.err(
+                "data.candidate_book",
+                "a candidate tranche's marginal capital comes with the allocation: set `capital.allocation = true`",
+            ));
+        }
+        if c.allocation {
+            if self.data.book.is_none() {
+                return Err(self.err(
+                    "capital.allocation",
+                    "allocation needs a book: set `data.book`",
+                ));
+            }
+            if !self.projection.noise || self.projection.scenarios < 2 {
+                return Err(self.err(
+                    "capital.allocation",
+                    "allocation needs stochastic scenarios: set `projection.noise = true` and at least 2 `projection.scenarios`",
+                ));
             }
         }
         Ok(())

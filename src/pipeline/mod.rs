@@ -6,6 +6,7 @@
 
 pub mod inputs;
 pub mod models;
+pub mod allocation;
 
 use std::ops::Range;
 use std::path::Path;
@@ -348,6 +349,9 @@ pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
     if let Some(curve) = &config.valuation.curve {
         paths.push(("curve", config.resolve(curve)));
     }
+    if let Some(candidate) = &config.data.candidate_book {
+        paths.push(("candidate_book", config.resolve(candidate)));
+    }
     paths.iter().map(|(role, p)| hash_file(role, p)).collect()
 }
 
@@ -454,6 +458,7 @@ pub fn summarize(
         hedges: None,
         models: None,
         model_average: None,
+        allocation: None,
     })
 }
 

@@ -40,6 +40,10 @@ pub struct ReportData {
     pub hedges: Vec<HedgeRow>,
     /// Several models side by side; `None` leaves the model-risk section out.
     pub model_risk: Option<ModelRisk>,
+    /// Capital allocated to segments (and a tranche's marginal capital); `None` leaves
+    /// the section out.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
 }
 
 /// Model risk: each valued model's fit, weight and figures, the mixture's, and the

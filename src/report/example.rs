@@ -271,6 +271,7 @@ impl ReportData {
                 },
             ],
             model_risk: None,
+            allocation: None,
         }
     }
 }

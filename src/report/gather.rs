@@ -110,6 +110,7 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> Result<ReportData> {
         capital: None,
         hedges: Vec::new(),
         model_risk: None,
+        allocation: inputs.summary.and_then(|s| s.allocation.clone()),
     };
     if let Some(outcome) = inputs.outcome {
         data.fans = fans(inputs, outcome);

@@ -87,6 +87,13 @@ pub fn page(data: &ReportData) -> Result<String> {
         capital_section(data)?,
         model_risk_section(data)?,
         hedge_section(&data.hedges, &data.currency),
+        super::allocation::allocation_section(data.allocation.as_ref(), &data.currency).map(
+            |(heading, body)| Section {
+                id: "allocation",
+                heading,
+                body,
+            },
+        ),
         projection_section(data)?,
         lifetime_section(&data.lifetimes)?,
         fit_section(data)?,
@@ -177,7 +184,7 @@ fn figure(svg: &str, caption: &str, note: Option<&str>) -> String {
 }
 
 /// Opens a table with the given header cells; cells starting with `#` are numeric.
-fn table_head(caption: Option<&str>, headers: &[&str]) -> String {
+pub(crate) fn table_head(caption: Option<&str>, headers: &[&str]) -> String {
     let mut out = String::from("<table>\n");
     if let Some(c) = caption {
         let _ = writeln!(out, "<caption>{}</caption>", escape(c));
@@ -197,7 +204,7 @@ fn table_head(caption: Option<&str>, headers: &[&str]) -> String {
     out
 }
 
-fn row(label: &str, cells: &[String], class: Option<&str>) -> String {
+pub(crate) fn row(label: &str, cells: &[String], class: Option<&str>) -> String {
     let mut out = match class {
         Some(c) => format!("<tr class=\"{c}\"><th>{}</th>", escape(label)),
         None => format!("<tr><th>{}</th>", escape(label)),

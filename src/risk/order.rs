@@ -222,7 +222,7 @@ impl<'a, S: Sample + ?Sized> Streamed<'a, S> {
 
     /// The values of the 0-based `ranks` (sorted, distinct, below the count) in the
     /// sample sorted by `f64::total_cmp`.
-    fn order_statistics(&self, ranks: &[usize]) -> Result<Vec<f64>> {
+    pub fn order_statistics(&self, ranks: &[usize]) -> Result<Vec<f64>> {
         let mut found: Vec<(usize, f64)> = Vec::with_capacity(ranks.len());
         let mut searches = vec![Search {
             span: self.span,

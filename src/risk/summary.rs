@@ -90,4 +90,8 @@ pub struct RunSummary {
     /// The weighted mixture of the valued models' distributions.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub model_average: Option<crate::risk::model_average::ModelAverage>,
+    /// Capital allocated to segments, and a tranche's marginal capital, when
+    /// `capital.allocation` is on.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
 }

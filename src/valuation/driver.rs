@@ -16,7 +16,7 @@ use crate::error::{Error, Result};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::{Projector, Purpose, ScenarioPaths, stream};
 use crate::valuation::lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
-use crate::valuation::portfolio::{PreparedBook, ScenarioValue, Workspace};
+use crate::valuation::portfolio::{NoPolicies, PolicySink, PreparedBook, ScenarioValue, Workspace};
 
 /// Scenarios valued per parallel chunk: enough to keep both cores busy between the
 /// ordered hand-overs, few enough that a chunk's results stay a few megabytes.
@@ -113,23 +113,48 @@ fn value_one(
     buffers: &mut Buffers,
     scenario: u64,
 ) -> Result<ScenarioResult> {
-    projector.generate(scenario, &mut buffers.paths)?;
-    let surfaces = buffers.paths.surfaces();
-    book.build_curves(&surfaces, &mut buffers.book)?;
     let mut result = ScenarioResult {
         scenario,
         ..ScenarioResult::default()
     };
-    if settings.idiosyncratic {
-        let mut rng = stream(settings.seed, scenario, Purpose::Deaths);
-        book.value(&mut buffers.book, Some(&mut rng), &mut result.value);
-    } else {
-        book.value::<rand_chacha::ChaCha8Rng>(&mut buffers.book, None, &mut result.value);
-    }
+    value_in_scenario(
+        projector,
+        book,
+        settings,
+        scenario,
+        (&mut buffers.paths, &mut buffers.book),
+        &mut result.value,
+        &mut NoPolicies,
+    )?;
     if let Some(table) = lifetimes {
+        let surfaces = buffers.paths.surfaces();
         table.compute(&surfaces, &mut buffers.lifetimes, &mut result.lifetimes)?;
     }
     Ok(result)
+}
+
+/// Generates scenario `scenario` into `buffers` (paths, book workspace) and values `book`
+/// in it into `out`, handing each policy's pieces to `policies`: what every scenario of a
+/// run goes through, so a scenario valued again on its own gives the same figures.
+pub fn value_in_scenario<P: PolicySink>(
+    projector: &Projector,
+    book: &PreparedBook,
+    settings: DriverSettings,
+    scenario: u64,
+    buffers: (&mut ScenarioPaths, &mut Workspace),
+    out: &mut ScenarioValue,
+    policies: &mut P,
+) -> Result<()> {
+    let (paths, ws) = buffers;
+    projector.generate(scenario, paths)?;
+    book.build_curves(&paths.surfaces(), ws)?;
+    if settings.idiosyncratic {
+        let mut rng = stream(settings.seed, scenario, Purpose::Deaths);
+        book.value_policies(ws, Some(&mut rng), out, policies);
+    } else {
+        book.value_policies::<rand_chacha::ChaCha8Rng, P>(ws, None, out, policies);
+    }
+    Ok(())
 }
 
 /// Reads the requested cells and period expectations off one scenario's rates.

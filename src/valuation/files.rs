@@ -251,6 +251,13 @@ fn read_error(path: &Path, e: impl std::fmt::Display) -> Error {
 
 impl Sample for BookColumn<'_> {
     fn pass(&self, each: &mut dyn FnMut(f64)) -> Result<()> {
+        self.pass_scenarios(&mut |_, x| each(x))
+    }
+}
+
+impl BookColumn<'_> {
+    /// Calls `each` with every stochastic scenario's number and value, in scenario order.
+    pub fn pass_scenarios(&self, each: &mut dyn FnMut(u64, f64)) -> Result<()> {
         let path = &self.book.path;
         let file = self.book.file.try_clone().map_err(|e| Error::io(path, e))?;
         let builder =
@@ -274,7 +281,7 @@ impl Sample for BookColumn<'_> {
             };
             for i in 0..batch.num_rows() {
                 if ids.value(i) != 0 && !values.is_null(i) {
-                    each(values.value(i));
+                    each(u64::from(ids.value(i)), values.value(i));
                 }
             }
         }

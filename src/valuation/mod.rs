@@ -5,6 +5,7 @@ pub mod driver;
 pub mod files;
 pub mod lifetimes;
 pub mod portfolio;
+pub mod replay;
 pub mod schedule;
 
 pub use cohort::{Cohort, LevelAdjustment};

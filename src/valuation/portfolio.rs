@@ -44,7 +44,33 @@ struct Life {
     cohort: u32,
     shape: u32,
     amount: f64,
+    /// Index of its policy in the book.
+    policy: u32,
 }
+
+/// Receives the per-policy pieces of one scenario's valuation (see `valuation::replay`):
+/// the book's own loop calls it where it adds each piece to the total, so a per-policy
+/// replay shares every draw and every product with the book's value. Each method defaults
+/// to nothing, and [`NoPolicies`] keeps the book's own valuation free of it.
+pub trait PolicySink {
+    /// Block `block` (an index into [`PreparedBook::policy_blocks`]'s values) is worth
+    /// `pv_per_amount` per unit of amount × weight on the scenario's path.
+    #[inline(always)]
+    fn block(&mut self, _block: usize, _pv_per_amount: f64) {}
+    /// Simulated life `life` (see [`PreparedBook::life_policies`]) receives contingent
+    /// payments worth `pv` (its amount already applied).
+    #[inline(always)]
+    fn life(&mut self, _life: usize, _pv: f64) {}
+    /// Lives `lives` also receive the certain payments, `certain_pv` per unit of amount.
+    #[inline(always)]
+    fn certain(&mut self, _lives: std::ops::Range<usize>, _certain_pv: f64) {}
+}
+
+/// The sink of the book's own valuation: keeps nothing.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct NoPolicies;
+
+impl PolicySink for NoPolicies {}
 
 /// Consecutive simulated lives sharing a cohort and a shape: the simulation looks up the
 /// curve and the schedule once per run, not once per life.
@@ -67,6 +93,10 @@ pub struct PreparedBook {
     /// Amount of each simulated life, grouped into `runs`.
     amounts: Vec<f64>,
     runs: Vec<Run>,
+    /// Policy (book index) of each simulated life, in the order of `amounts`.
+    life_policy: Vec<u32>,
+    /// Block (index into `blocks`) of each policy, in book order.
+    policy_block: Vec<u32>,
     level: LevelAdjustment,
     /// Total amount of lives per shape, for the simulated cash flows.
     shape_amount: Vec<f64>,
@@ -149,7 +179,8 @@ impl PreparedBook {
         let mut block_index: HashMap<(u32, u32), usize> = HashMap::new();
         let mut blocks: Vec<Block> = Vec::new();
         let mut lives = Vec::with_capacity(book.policies.len());
-        for p in &book.policies {
+        let mut policy_block = Vec::with_capacity(book.policies.len());
+        for (i, p) in book.policies.iter().enumerate() {
             let c = *cohort_index
                 .entry((p.sex, p.age, p.mortality_factor.to_bits()))
                 .or_insert_with(|| {
@@ -175,6 +206,7 @@ impl PreparedBook {
                 blocks.len() - 1
             });
             blocks[b].amount += total;
+            policy_block.push(b as u32);
             // A weight of w stands for w lives; a fractional weight is spread over
             // round(w) lives (at least one) so the total amount is kept.
             let n = p.weight.round().max(1.0) as usize;
@@ -184,6 +216,7 @@ impl PreparedBook {
                     cohort: c,
                     shape: s,
                     amount: each,
+                    policy: i as u32,
                 },
                 n,
             ));
@@ -209,6 +242,7 @@ impl PreparedBook {
             }
         }
         let amounts = lives.iter().map(|l| l.amount).collect();
+        let life_policy = lives.iter().map(|l| l.policy).collect();
         Ok(PreparedBook {
             year,
             cohorts,
@@ -216,6 +250,8 @@ impl PreparedBook {
             blocks,
             amounts,
             runs,
+            life_policy,
+            policy_block,
             level,
             shape_amount,
             years,
@@ -241,6 +277,26 @@ impl PreparedBook {
     /// Number of simulated lives.
     pub fn lives(&self) -> usize {
         self.amounts.len()
+    }
+
+    /// Policy (index in the book) of each simulated life, in simulation order.
+    pub fn life_policies(&self) -> &[u32] {
+        &self.life_policy
+    }
+
+    /// Amount of each simulated life, in simulation order.
+    pub fn life_amounts(&self) -> &[f64] {
+        &self.amounts
+    }
+
+    /// Valuation block of each policy, in book order.
+    pub fn policy_blocks(&self) -> &[u32] {
+        &self.policy_block
+    }
+
+    /// Number of valuation blocks (cohort × shape).
+    pub fn blocks(&self) -> usize {
+        self.blocks.len()
     }
 
     /// Builds every cohort's curve for one scenario into `ws`; `surfaces[i]` holds sex i's
@@ -294,13 +350,26 @@ impl PreparedBook {
     /// Values the book in one scenario whose curves are in `ws`; simulates individual deaths
     /// with `rng` when given.
     pub fn value<R: Rng>(&self, ws: &mut Workspace, rng: Option<&mut R>, out: &mut ScenarioValue) {
+        self.value_policies(ws, rng, out, &mut NoPolicies);
+    }
+
+    /// As [`Self::value`], handing each policy's pieces of the value to `policies` on the way.
+    pub fn value_policies<R: Rng, P: PolicySink>(
+        &self,
+        ws: &mut Workspace,
+        rng: Option<&mut R>,
+        out: &mut ScenarioValue,
+        policies: &mut P,
+    ) {
         out.cash_expected.clear();
         out.cash_expected.resize(self.years, 0.0);
         let mut pv = 0.0;
-        for b in &self.blocks {
+        for (i, b) in self.blocks.iter().enumerate() {
             let (q, s) = (&ws.q[b.cohort as usize], &ws.survival[b.cohort as usize]);
             let sched = &self.schedules[b.shape as usize];
-            pv += b.amount * sched.expected_pv(s, q);
+            let per_amount = sched.expected_pv(s, q);
+            policies.block(i, per_amount);
+            pv += b.amount * per_amount;
             for k in 0..q.len().min(sched.years) {
                 out.cash_expected[k] += b.amount
                     * (sched.certain_cash[k]
@@ -313,7 +382,7 @@ impl PreparedBook {
         }
         out.pv_expected = pv;
         match rng {
-            Some(rng) => self.simulate(ws, rng, out),
+            Some(rng) => self.simulate(ws, rng, out, policies),
             None => {
                 out.pv_simulated = f64::NAN;
                 out.cash_simulated.clear();
@@ -323,7 +392,13 @@ impl PreparedBook {
 
     /// Draws each life's time of death from its cohort curve (UDD within the year, by
     /// inversion of one uniform) and adds up the payments it receives.
-    fn simulate<R: Rng>(&self, ws: &mut Workspace, rng: &mut R, out: &mut ScenarioValue) {
+    fn simulate<R: Rng, P: PolicySink>(
+        &self,
+        ws: &mut Workspace,
+        rng: &mut R,
+        out: &mut ScenarioValue,
+        policies: &mut P,
+    ) {
         let n_shapes = self.schedules.len();
         ws.guide.resize(self.cohorts.len(), [0; GUIDE_BUCKETS]);
         for (c, s) in ws.survival.iter().enumerate().take(self.cohorts.len()) {
@@ -344,7 +419,8 @@ impl PreparedBook {
             let dying = &mut ws.dying[row..row + stride];
             let partial = &mut ws.partial[row..row + stride];
             let mut run_pv = 0.0;
-            for &amount in &self.amounts[run.start as usize..run.end as usize] {
+            let lives = run.start as usize..run.end as usize;
+            for (life, &amount) in lives.clone().zip(&self.amounts[lives.clone()]) {
                 // U in (0, 1) from 32 random bits; its top bits pick the guide bucket.
                 let bits = rng.next_u32();
                 let u = (f64::from(bits) + 0.5) * UNIT_32;
@@ -356,7 +432,9 @@ impl PreparedBook {
                 // Under UDD the time of death within year K is linear in U.
                 let f = (s[k] - u) / (s[k] - s[k + 1]);
                 let paid = lookup.payments_before(k, f);
-                run_pv += amount * lookup.pv_prefix[paid];
+                let life_pv = amount * lookup.pv_prefix[paid];
+                policies.life(life, life_pv);
+                run_pv += life_pv;
                 dying[k] += amount;
                 let year_start = lookup.year_start[k] as usize;
                 partial[k] += amount * (lookup.cash_prefix[paid] - lookup.cash_prefix[year_start]);
@@ -364,6 +442,7 @@ impl PreparedBook {
             let run_amount: f64 = self.amounts[run.start as usize..run.end as usize]
                 .iter()
                 .sum();
+            policies.certain(lives, sched.certain_pv);
             pv += run_pv + run_amount * sched.certain_pv;
         }
         out.pv_simulated = pv;

@@ -5,6 +5,7 @@
 mod models_support;
 mod projection_support;
 
+mod allocation_cli;
 mod cli_check;
 mod cohort_cli;
 mod data_loaders;
