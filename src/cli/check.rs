@@ -31,6 +31,9 @@ pub fn summary(path: &Path) -> Result<String> {
     let config = Config::load(path)?;
     let experience = Experience::from_config(&config)?;
     let book = Book::from_config(&config)?;
+    if let (Some(_), Some(path)) = (&config.basis, &config.data.book_experience) {
+        crate::basis::book_experience::load(&config, &config.resolve(path))?;
+    }
     let curve =
         if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
             Some(DiscountCurve::from_config(&config)?)

@@ -100,6 +100,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut probe_offset = 0;
     if let Some(book) = book {
         let setup = ValuationSetup::new(&config, book, &projector)?;
+        crate::pipeline::write_basis(&config, &provenance, &setup)?;
         let mut probes = Vec::new();
         if let Some(h) = &config.hedge {
             probes.extend(ReferenceCells::of(h).cells);

@@ -44,6 +44,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
     let fits = ProjectedFits::fit(&config, &experience)?;
     let mut projector = fits.projector(&config, &experience)?;
     let setup = ValuationSetup::new(&config, book, &projector)?;
+    crate::pipeline::write_basis(&config, &provenance, &setup)?;
     let options = OutputOptions {
         folder: config.output_folder(),
         paths: false,

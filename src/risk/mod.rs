@@ -4,6 +4,7 @@
 //! shards and the one-year framework.
 
 pub mod capital;
+pub mod decomposition;
 pub mod merge;
 pub mod one_year;
 pub mod order;

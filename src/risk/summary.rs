@@ -83,4 +83,8 @@ pub struct RunSummary {
     /// Hedge prices and effectiveness, when hedges are configured.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub hedges: Option<serde_json::Value>,
+    /// Run-off capital by source (trend, the book's level and spread, idiosyncratic), when
+    /// the book has its own basis (`[basis]`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub decomposition: Option<crate::risk::decomposition::Decomposition>,
 }

@@ -5,6 +5,8 @@
 mod models_support;
 mod projection_support;
 
+mod basis_cli;
+mod basis_reference;
 mod cli_check;
 mod cohort_cli;
 mod data_loaders;
