@@ -98,9 +98,11 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut outcome = None;
     let mut hedges = None;
     let mut probe_offset = 0;
+    let mut basis = None;
     if let Some(book) = book {
         let setup = ValuationSetup::new(&config, book, &projector)?;
         crate::pipeline::write_basis(&config, &provenance, &setup)?;
+        basis = setup.basis.clone();
         let mut probes = Vec::new();
         if let Some(h) = &config.hedge {
             probes.extend(ReferenceCells::of(h).cells);
@@ -166,6 +168,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         hedges: hedges.as_ref(),
         provenance: &provenance,
         run_at,
+        basis: basis.as_ref(),
     })?;
     let report = config.output_folder().join("report.html");
     crate::report::write(&report, &data)?;

@@ -56,6 +56,10 @@ pub struct BookSample {
     pub idiosyncratic: Vec<f64>,
     /// Per `[[hedge.swap]]`, in config order: the floating leg's PV at π = 0 per scenario.
     pub floating: Vec<Vec<f64>>,
+    /// With `[basis]` and index hedges: the book's PV per scenario had it followed the
+    /// index population at its fitted level and the spread's expected path (its own level
+    /// and spread not drawn), with the same individual deaths; empty otherwise.
+    pub pv_index: Vec<f64>,
 }
 
 impl BookSample {

@@ -265,10 +265,12 @@ pub fn value_book(
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
         book_rates: setup.book_rates(),
+        // Index hedges (parametric swaps, q-forwards) need the book on the index's rates.
         index_cash: hedges.is_some_and(|h| {
-            h.swap
-                .iter()
-                .any(|s| s.floating == crate::hedge::spec::FloatingBasis::Parametric)
+            !h.qforward.is_empty()
+                || h.swap
+                    .iter()
+                    .any(|s| s.floating == crate::hedge::spec::FloatingBasis::Parametric)
         }),
     };
     let mut files = ValuationFiles::create(options, setup.year, true)?;
@@ -348,6 +350,9 @@ pub fn value_book(
                         &r.value,
                         index_cash,
                     )?;
+                    if !r.index_cash.is_empty() {
+                        sample.pv_index.push(r.index_pv);
+                    }
                 }
             }
             progress(chunk.len() as u64);

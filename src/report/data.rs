@@ -38,6 +38,8 @@ pub struct ReportData {
     pub capital: Option<CapitalTable>,
     /// Hedge comparison, one row per contract; empty leaves the table out.
     pub hedges: Vec<HedgeRow>,
+    /// The book against its population (`[basis]`); `None` leaves the section out.
+    pub book_basis: Option<crate::report::basis::BookBasisReport>,
 }
 
 /// Run metadata: what was run, on what, and when.

@@ -270,6 +270,7 @@ impl ReportData {
                     capital_with: 0.81 * capital_without,
                 },
             ],
+            book_basis: None,
         }
     }
 }

@@ -6,6 +6,7 @@
 //! touching models or scenario files. Sections whose data is absent are left out rather
 //! than drawn empty. Writing the page is the atomic writer's job ([`crate::io`]).
 
+pub mod basis;
 pub mod charts;
 pub mod data;
 mod example;

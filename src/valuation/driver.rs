@@ -40,6 +40,9 @@ pub struct ScenarioResult {
     /// the population's path at the book's fitted level and expected spread, what an
     /// index-based (parametric) hedge floats on; empty otherwise.
     pub index_cash: Vec<f64>,
+    /// With [`ScenarioResult::index_cash`]: the book's PV on those rates, with individual
+    /// deaths when they are simulated (the same deaths stream); 0 otherwise.
+    pub index_pv: f64,
 }
 
 /// Scenario figures read off the rates besides the book's values: cells for the hedges
@@ -154,7 +157,14 @@ fn value_one(
         let index = rates.apply_with(fixed, scenario, &population, &mut buffers.book_rates);
         book.build_curves(&index, &mut buffers.book)?;
         let mut value = ScenarioValue::default();
-        book.value::<rand_chacha::ChaCha8Rng>(&mut buffers.book, None, &mut value);
+        if settings.idiosyncratic {
+            let mut rng = stream(settings.seed, scenario, Purpose::Deaths);
+            book.value(&mut buffers.book, Some(&mut rng), &mut value);
+            result.index_pv = value.pv_simulated;
+        } else {
+            book.value::<rand_chacha::ChaCha8Rng>(&mut buffers.book, None, &mut value);
+            result.index_pv = value.pv_expected;
+        }
         result.index_cash = value.cash_expected;
     }
     Ok(result)

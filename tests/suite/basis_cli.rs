@@ -53,6 +53,10 @@ fn basis_run_writes_the_fit_and_the_decomposition() {
     assert_eq!(ae["by_age_band"][0]["ages"], serde_json::json!([60, 64]));
     assert_eq!(ae["by_year"].as_array().unwrap().len(), 10);
 
+    let report = std::fs::read_to_string(dir.path().join("out/report.html")).unwrap();
+    assert!(report.contains("Book against population"));
+    assert!(report.contains("Trend + level + spread"));
+
     let summary = json(dir.path().join("out/summary.json"));
     let d = &summary["decomposition"];
     assert_eq!(d["scenarios"], 60);
@@ -82,6 +86,16 @@ fn basis_run_writes_the_fit_and_the_decomposition() {
     };
     assert!(reduction("m75-2035") < reduction("indemnity-runoff"));
     assert!(reduction("parametric-runoff") < reduction("indemnity-runoff"));
+    // What the index hedges leave because the book's level and spread are its own.
+    for name in ["parametric-runoff", "m75-2035"] {
+        let contract = contracts.iter().find(|c| c["name"] == name).unwrap();
+        assert!(contract["capital_left_by_basis_risk"][0].is_f64(), "{name}");
+    }
+    let indemnity = contracts
+        .iter()
+        .find(|c| c["name"] == "indemnity-runoff")
+        .unwrap();
+    assert!(indemnity.get("capital_left_by_basis_risk").is_none());
 }
 
 #[test]
@@ -149,3 +163,4 @@ fn the_parametric_swap_leaves_the_books_level_and_spread_risk() {
     // book's own level and spread are drawn, it removes a smaller share of the capital.
     assert!(reduction(true) < reduction(false));
 }
+
