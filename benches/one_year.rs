@@ -31,6 +31,7 @@ fn bench(c: &mut Criterion) {
         specs: &fits.specs,
         populations: &experience.populations,
         year: setup.year,
+        book_rates: setup.book_rates(),
     };
     let mut group = c.benchmark_group("one_year");
     group.sample_size(10);

@@ -8,19 +8,21 @@
 //! Layers, each using only those below it:
 //!
 //! ```text
-//! cli → report → pipeline → hedge → risk → valuation → projection → models → life
-//!                                                       series, interest, io, data, error
+//! cli → report → pipeline → hedge → risk → valuation → basis → projection → models → life
+//!                                                               series, interest, io, data, error
 //! ```
 //!
 //! [`series`] (random walks, the cohort index's ARIMA and AR(1) forms) serves both the fits
 //! that rank and describe a model and the projection that draws from it; [`interest`]
 //! (discount curves, discount functions, payment timing) serves the life-table maths and
-//! the valuation; [`projection`] owns the rate surface that the valuation, hedges and
+//! the valuation; [`basis`] makes the book's own rates from the population's, between the
+//! projection that draws the population and the valuation that reads the book; [`projection`] owns the rate surface that the valuation, hedges and
 //! one-year refits read; [`report`] reads finished results, and [`io`] only writes.
 //! Three edges still point upwards and are known: `risk::merge` drives the pipeline's
 //! stages (it is the `merge` command's work), `valuation::files` fills `risk::order`'s PV
 //! sample, and the config in [`data`] holds the hedges' terms (`hedge::spec`).
 
+pub mod basis;
 pub mod cli;
 pub mod data;
 pub mod error;

@@ -93,6 +93,8 @@ enum Stream {
     CellNoise = 2,
     Deaths = 3,
     Book = 4,
+    BookSpread = 5,
+    BookDeaths = 6,
 }
 
 /// Stream numbers carry a tag in their high bits so they can never coincide with the
@@ -313,7 +315,87 @@ pub fn book(seed: u64, policies: usize) -> Result<Book> {
     })
 }
 
-/// Writes `DIR/experience.csv` and `DIR/book.csv` for `seed`. Both files are fully
+/// Calendar years of the invented book's own experience.
+pub const BOOK_YEARS: Span = Span {
+    first: 2015,
+    last: 2024,
+};
+
+/// Ages of the invented book's own experience.
+pub const BOOK_AGES: Span = Span {
+    first: 60,
+    last: 95,
+};
+
+/// The invented book's log-rate level against the population at [`BOOK_MEAN_AGE`]:
+/// about 11 % lighter mortality.
+pub const BOOK_LEVEL: f64 = -0.12;
+
+/// Change of the book's log-rate gap per year of age: the gap narrows with age.
+pub const BOOK_SLOPE: f64 = 0.006;
+
+/// Age about which the book's slope turns (the mid-point of the demo's fitted ages).
+pub const BOOK_MEAN_AGE: f64 = 77.5;
+
+/// AR(1) coefficient of the invented book's yearly spread over the population.
+pub const BOOK_SPREAD_PHI: f64 = 0.5;
+
+/// Innovation standard deviation of the invented book's spread.
+pub const BOOK_SPREAD_SIGMA: f64 = 0.05;
+
+/// The invented book's own deaths and exposures, ages 60–95 in 2015–2024: the
+/// population's generating rates of [`population`] times exp(level + slope (x − x̄) + κ_t),
+/// with κ_t a mean-zero AR(1) started from its stationary distribution, deaths Poisson.
+/// Exposure peaks near 70 (about 2,000 person-years a cell for women, 1,600 for men), for a
+/// few thousand deaths a year.
+pub fn book_experience(seed: u64, population: &SyntheticPopulation) -> Result<Experience> {
+    let mut spread_rng = rng(seed, Stream::BookSpread);
+    let stationary = BOOK_SPREAD_SIGMA / (1.0 - BOOK_SPREAD_PHI * BOOK_SPREAD_PHI).sqrt();
+    let mut spread = Vec::with_capacity(BOOK_YEARS.len());
+    let start: f64 = StandardNormal.sample(&mut spread_rng);
+    let mut kappa = stationary * start;
+    for _ in BOOK_YEARS.iter() {
+        spread.push(kappa);
+        let z: f64 = StandardNormal.sample(&mut spread_rng);
+        kappa = BOOK_SPREAD_PHI * kappa + BOOK_SPREAD_SIGMA * z;
+    }
+    let mut deaths_rng = rng(seed, Stream::BookDeaths);
+    let mut populations = Vec::with_capacity(2);
+    for (s, sex) in Sex::ALL.into_iter().enumerate() {
+        let size = if sex == Sex::F { 2000.0 } else { 1600.0 };
+        let mut exposure = DMatrix::zeros(BOOK_AGES.len(), BOOK_YEARS.len());
+        let mut deaths = DMatrix::zeros(BOOK_AGES.len(), BOOK_YEARS.len());
+        for (j, year) in BOOK_YEARS.iter().enumerate() {
+            for (i, age) in BOOK_AGES.iter().enumerate() {
+                let (Some(pi), Some(pj)) = (AGES.index(age), YEARS.index(year)) else {
+                    return Err(Error::Numerical(format!(
+                        "the book's cell (age {age}, year {year}) lies outside the population"
+                    )));
+                };
+                let m = population.central_rates[s][(pi, pj)]
+                    * (BOOK_LEVEL + BOOK_SLOPE * (age as f64 - BOOK_MEAN_AGE) + spread[j]).exp();
+                let z = (age as f64 - 70.0) / 12.0;
+                let e = (size * (-z * z).exp() * 10.0).round() / 10.0;
+                let poisson = Poisson::new(e * m).map_err(|err| {
+                    Error::Numerical(format!(
+                        "synthetic book deaths for sex {sex}, age {age}, year {year}: {err}"
+                    ))
+                })?;
+                exposure[(i, j)] = e;
+                deaths[(i, j)] = poisson.sample(&mut deaths_rng);
+            }
+        }
+        populations.push(Population::new(
+            sex, BOOK_AGES, BOOK_YEARS, deaths, exposure,
+        )?);
+    }
+    Ok(Experience {
+        source: Default::default(),
+        populations,
+    })
+}
+
+/// Writes `DIR/experience.csv`, `DIR/book.csv` and `DIR/book-experience.csv` for `seed`. Both files are fully
 /// written under temporary names before either is renamed into place, and a folder this
 /// call created is removed again on failure.
 pub fn write(dir: &Path, seed: u64, policies: usize) -> Result<()> {
@@ -325,14 +407,18 @@ pub fn write(dir: &Path, seed: u64, policies: usize) -> Result<()> {
     }
     let population = population(seed)?;
     let book = book(seed, policies)?;
+    let book_experience = book_experience(seed, &population)?;
     let existed = dir.exists();
     let result = (|| {
         let experience = population
             .experience
             .write_unpublished(&dir.join("experience.csv"))?;
         let book = book.write_unpublished(&dir.join("book.csv"))?;
+        let book_experience =
+            book_experience.write_unpublished(&dir.join("book-experience.csv"))?;
         experience.commit()?;
-        book.commit()
+        book.commit()?;
+        book_experience.commit()
     })();
     if result.is_err() && !existed {
         // Only removes the folder if it is empty, i.e. nothing was published.

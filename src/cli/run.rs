@@ -15,8 +15,8 @@ use crate::hedge::HedgeResults;
 use crate::hedge::qforward::ReferenceCells;
 use crate::io::provenance::retire_stale_records;
 use crate::io::write_json;
-use crate::pipeline::inputs::checked_inputs;
 use crate::io::{AtomicFile, Provenance};
+use crate::pipeline::inputs::checked_inputs;
 use crate::pipeline::models::{
     ModelFiles, Staging, ValuedModel, compare_models, gather_model_files, model_options,
 };
@@ -105,7 +105,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
             experience: &experience,
             book: book.as_ref(),
             candidate: candidate.as_ref(),
-            allocate: runs.is_empty(),
+            first: runs.is_empty(),
             options: model_options(&base_options, staging.as_ref(), kind),
             label: staging.as_ref().map(|_| kind.name()),
             quiet,
@@ -161,9 +161,15 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
     let mut outcome = None;
     let mut hedges = None;
     let mut probe_offset = 0;
+    let mut basis = None;
     if let Some(valued) = first.valued.take() {
         retire_stale_records(&config.output_folder(), &provenance)?;
-        for file in valued.files.into_iter().chain(pending).chain(valued.allocation) {
+        for file in valued
+            .files
+            .into_iter()
+            .chain(pending)
+            .chain(valued.allocation)
+        {
             file.commit()?;
         }
         write_json(config.output_folder().join("summary.json"), &valued.summary)?;
@@ -171,6 +177,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         outcome = Some(valued.outcome);
         hedges = valued.hedges;
         probe_offset = valued.probe_offset;
+        basis = valued.basis;
     } else {
         retire_stale_records(&config.output_folder(), &provenance)?;
         for file in pending {
@@ -191,6 +198,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
         hedges: hedges.as_ref(),
         provenance: &provenance,
         run_at,
+        basis: basis.as_ref(),
     })?;
     data.model_risk = model_risk_data;
     let report = config.output_folder().join("report.html");
@@ -216,9 +224,9 @@ struct ModelContext<'a> {
     book: Option<&'a Book>,
     /// A tranche to price beside the book (`data.candidate_book`).
     candidate: Option<&'a Book>,
-    /// Whether this kind's capital is allocated: the first kind's, as the top-level
-    /// figures are.
-    allocate: bool,
+    /// Whether this is the first listed kind, whose capital is allocated and whose book
+    /// basis is written, as the top-level figures are its.
+    first: bool,
     /// Where this kind writes (its staging folder in a multi-model run).
     options: OutputOptions,
     /// The kind's name on the progress bars when several are run.
@@ -235,6 +243,8 @@ struct ModelValuation {
     summary: RunSummary,
     hedges: Option<HedgeResults>,
     probe_offset: usize,
+    /// The book's fitted basis, when `[basis]` is configured.
+    basis: Option<crate::basis::FittedBasis>,
 }
 
 /// One kind's run: fits, projector, projection files, and valuation when there is a book.
@@ -275,6 +285,9 @@ fn run_model(
         });
     };
     let setup = ValuationSetup::new(config, book.clone(), &projector)?;
+    if cx.first {
+        crate::pipeline::write_basis(config, cx.provenance, &setup)?;
+    }
     let mut probes = Vec::new();
     if let Some(h) = &config.hedge {
         probes.extend(ReferenceCells::of(h).cells);
@@ -314,7 +327,7 @@ fn run_model(
         &outcome,
     )?;
     stages.done("capital");
-    let allocation = match cx.allocate {
+    let allocation = match cx.first {
         true => crate::pipeline::allocation::allocation_stage(
             config,
             cx.provenance,
@@ -357,6 +370,7 @@ fn run_model(
             summary,
             hedges,
             probe_offset,
+            basis: setup.basis.clone(),
         }),
     })
 }

@@ -71,6 +71,9 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
         let fits = ProjectedFits::fit_kind(&config, &experience, kind)?;
         let mut projector = fits.projector(&config, &experience)?;
         let setup = ValuationSetup::new(&config, book.clone(), &projector)?;
+        if valued.is_empty() {
+            crate::pipeline::write_basis(&config, &provenance, &setup)?;
+        }
         let options = model_options(&base_options, staging.as_ref(), kind);
         projector.prepare(ids.clone())?;
         let stage = match &staging {

@@ -42,6 +42,9 @@ pub struct Config {
     /// Longevity hedges to price (optional).
     #[serde(default)]
     pub hedge: Option<HedgeConfig>,
+    /// The book's own mortality against the population (optional).
+    #[serde(default)]
+    pub basis: Option<BasisConfig>,
     /// Folder of the config file; input and output paths are relative to it.
     #[serde(skip)]
     pub base: PathBuf,
@@ -78,6 +81,33 @@ pub struct DataConfig {
     /// Sexes to fit and project.
     #[serde(default = "default_sexes")]
     pub sexes: Vec<Sex>,
+    /// The book's own deaths and exposures (`year,age,sex,deaths,exposure`), for `[basis]`.
+    #[serde(default)]
+    pub book_experience: Option<PathBuf>,
+}
+
+/// How the book's mortality is related to the population's (`[basis] kind`).
+#[derive(Debug, Clone, Copy, Deserialize, Serialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum BasisKind {
+    /// log m_book = log m̂_pop + α0 + α1 (x − x̄) + κ_t, κ_t a mean-zero AR(1).
+    Relative,
+    /// Li & Lee (2005) augmented common factor for two large populations.
+    LiLee,
+}
+
+/// `[basis]`: the book's own level, slope and spread against the population.
+#[derive(Debug, Clone, Deserialize, Serialize)]
+#[serde(deny_unknown_fields)]
+pub struct BasisConfig {
+    /// The relation between the book and the population.
+    pub kind: BasisKind,
+    /// Draw (α0, α1) per scenario from their estimated normal distribution.
+    #[serde(default)]
+    pub level_uncertainty: bool,
+    /// Project the spread κ_t stochastically (otherwise on its expected path).
+    #[serde(default)]
+    pub spread: bool,
 }
 
 /// A single model kind or a list of them.
@@ -698,6 +728,23 @@ impl Config {
         Error::config(&self.file, key, rule)
     }
 
+    /// Checks `[basis]` against the inputs it needs.
+    fn check_basis(&self, basis: &BasisConfig) -> Result<()> {
+        if self.data.book_experience.is_none() {
+            return Err(self.err(
+                "data.book_experience",
+                "`[basis]` needs the book's own deaths and exposures: set `data.book_experience`",
+            ));
+        }
+        if basis.kind == BasisKind::LiLee {
+            return Err(self.err(
+                "basis.kind",
+                "`li-lee` is not available in this version; use `relative`",
+            ));
+        }
+        Ok(())
+    }
+
     /// Checks every rule that serde's types cannot express.
     fn check(&self) -> Result<()> {
         let d = &self.data;
@@ -937,6 +984,9 @@ impl Config {
             return Err(self.err("capital.one_year_scenarios", "must be at least 1"));
         }
         self.check_allocation()?;
+        if let Some(basis) = &self.basis {
+            self.check_basis(basis)?;
+        }
         if let Some(hedge) = &self.hedge {
             hedge.check(self)?;
             if !p.noise {

@@ -90,6 +90,11 @@ pub struct SwapSummary {
     pub net: Distribution,
     /// The book with and without the swap.
     pub effectiveness: Effectiveness,
+    /// For a parametric swap on a book with its own basis (`[basis]`): per capital level,
+    /// hedged capital less the hedged capital of the book had it followed the index at
+    /// its fitted level and spread (the same scenarios and deaths).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub capital_left_by_basis_risk: Option<Vec<f64>>,
 }
 
 /// One q-forward for `summary.json` and the report.
@@ -132,6 +137,11 @@ pub struct QForwardSummary {
     /// Standard deviation of the book's idiosyncratic PV, which an index hedge leaves in
     /// place; `None` when individual deaths were not simulated.
     pub unhedgeable_sd: Option<f64>,
+    /// On a book with its own basis (`[basis]`): per capital level, hedged capital less
+    /// the hedged capital of the book had it followed the index at its fitted level and
+    /// spread (the same scenarios and deaths).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub capital_left_by_basis_risk: Option<Vec<f64>>,
 }
 
 /// One contract's summary, tagged by kind.
@@ -246,6 +256,31 @@ pub fn evaluate(config: &HedgeConfig, inputs: &HedgeInputs<'_>) -> Result<HedgeR
     })
 }
 
+/// Hedged capital less the hedged capital of the book on the index's rates, per level,
+/// when the sample holds the book's PV on the index's rates.
+fn basis_risk_capital(inputs: &HedgeInputs<'_>, net: &[f64], net_central: f64) -> Option<Vec<f64>> {
+    let book = inputs.book;
+    if book.pv_index.len() != book.pv.len() || book.pv.is_empty() {
+        return None;
+    }
+    let best_estimate = book.best_estimate();
+    let own = effectiveness(&book.pv, best_estimate, net, net_central, inputs.levels);
+    let index = effectiveness(
+        &book.pv_index,
+        best_estimate,
+        net,
+        net_central,
+        inputs.levels,
+    );
+    Some(
+        own.tails
+            .iter()
+            .zip(&index.tails)
+            .map(|(o, i)| o.capital_hedged - i.capital_hedged)
+            .collect(),
+    )
+}
+
 fn evaluate_swap(
     config: &HedgeConfig,
     s: &SwapConfig,
@@ -288,6 +323,9 @@ fn evaluate_swap(
             v.net_central,
             inputs.levels,
         ),
+        capital_left_by_basis_risk: (terms.floating == FloatingBasis::Parametric)
+            .then(|| basis_risk_capital(inputs, &v.net, v.net_central))
+            .flatten(),
         name: terms.name,
         floating: terms.floating,
         side: terms.side,
@@ -351,6 +389,7 @@ fn evaluate_qforward(
             inputs.levels,
         ),
         unhedgeable_sd: None,
+        capital_left_by_basis_risk: basis_risk_capital(inputs, &v.net, v.net_central),
         name: terms.name,
         side: terms.side,
         sex: terms.sex,

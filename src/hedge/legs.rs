@@ -56,6 +56,10 @@ pub struct BookSample {
     pub idiosyncratic: Vec<f64>,
     /// Per `[[hedge.swap]]`, in config order: the floating leg's PV at π = 0 per scenario.
     pub floating: Vec<Vec<f64>>,
+    /// With `[basis]` and index hedges: the book's PV per scenario had it followed the
+    /// index population at its fitted level and the spread's expected path (its own level
+    /// and spread not drawn), with the same individual deaths; empty otherwise.
+    pub pv_index: Vec<f64>,
 }
 
 impl BookSample {
@@ -123,7 +127,25 @@ impl BookSampler {
 
     /// Adds scenario `s` (counted from 0 among the stochastic ones) to `sample`.
     pub fn push(&self, sample: &mut BookSample, s: usize, v: &ScenarioValue) -> Result<()> {
+        self.push_with_index(sample, s, v, &v.cash_expected)
+    }
+
+    /// As [`Self::push`], with the parametric swaps floating on `index_cash`: the book's
+    /// expected benefits on the index population's path, when the book's own rates
+    /// (`[basis]`) add a level and spread of their own that an index does not see.
+    pub fn push_with_index(
+        &self,
+        sample: &mut BookSample,
+        s: usize,
+        v: &ScenarioValue,
+        index_cash: &[f64],
+    ) -> Result<()> {
         let years = self.years;
+        if index_cash.len() != years || !all_finite(index_cash) {
+            return Err(Error::Numerical(format!(
+                "scenario {s}: the index's expected cash flows must cover {years} policy years with finite values"
+            )));
+        }
         let cash = realised_cash(v);
         if cash.len() != years || !all_finite(cash) || !book_pv(v).is_finite() {
             return Err(Error::Numerical(format!(
@@ -141,7 +163,11 @@ impl BookSampler {
         sample.idiosyncratic.push(v.pv_simulated - v.pv_expected);
         sample.floating.resize_with(self.swaps.len(), Vec::new);
         for ((basis, discounts), out) in self.swaps.iter().zip(&mut sample.floating) {
-            out.push(floating_pv(*basis, v, discounts));
+            let cash = match basis {
+                FloatingBasis::Indemnity => realised_cash(v),
+                FloatingBasis::Parametric => index_cash,
+            };
+            out.push(settled_pv(cash, discounts));
         }
         Ok(())
     }

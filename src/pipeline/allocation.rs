@@ -56,7 +56,7 @@ pub fn allocation_stage(
     let book = outcome.book.as_ref().ok_or_else(|| {
         Error::model("allocation", "book.parquet was not kept for the allocation")
     })?;
-    let settings = settings(config);
+    let settings = settings(config, setup);
     let replay = PolicyReplay::new(&setup.book, &setup.prepared, projector, settings)?;
     let allocation = allocate(
         &replay,
@@ -79,10 +79,14 @@ pub fn allocation_stage(
     Ok(Some(file))
 }
 
-fn settings(config: &Config) -> DriverSettings {
+/// The run's driver settings for `setup`'s book: its seed, its deaths and, with `[basis]`,
+/// its own rates.
+fn settings<'a>(config: &Config, setup: &'a ValuationSetup) -> DriverSettings<'a> {
     DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
+        book_rates: setup.book_rates(),
+        index_cash: false,
     }
 }
 
@@ -151,7 +155,7 @@ fn value_everywhere(
         expected: Vec::with_capacity(n),
         simulated: Vec::new(),
     };
-    let settings = settings(config);
+    let settings = settings(config, setup);
     value_scenarios(
         projector,
         &setup.prepared,
@@ -230,7 +234,7 @@ fn tranche(
         &together.book,
         &together.prepared,
         projector,
-        settings(config),
+        settings(config, &together),
     )?;
     let allocation: Allocation = allocate(
         &replay,

@@ -4,9 +4,9 @@
 //! model fitted to each sex, a projector over the joint basis — and must build them the same
 //! way, or a `value` would not reproduce the paths a `project` wrote for the same seed.
 
+pub mod allocation;
 pub mod inputs;
 pub mod models;
-pub mod allocation;
 
 use std::ops::Range;
 use std::path::Path;
@@ -15,6 +15,7 @@ use std::sync::Arc;
 use arrow_array::{ArrayRef, Float64Array, StringArray, UInt32Array};
 use arrow_schema::{DataType, Field, Schema};
 
+use crate::basis::{BookRates, FittedBasis};
 use crate::data::{Book, Config, Experience, Sex};
 use crate::error::{Error, Result};
 use crate::hedge::legs::{BookSample, BookSampler};
@@ -101,6 +102,8 @@ pub struct ValuationSetup {
     pub lifetimes: LifetimeTable,
     /// Valuation year.
     pub year: i32,
+    /// The book's own mortality against the population (`[basis]`), if configured.
+    pub basis: Option<FittedBasis>,
 }
 
 impl ValuationSetup {
@@ -144,7 +147,13 @@ impl ValuationSetup {
             prepared,
             lifetimes,
             year,
+            basis: crate::basis::from_config(config, projector.basis())?,
         })
+    }
+
+    /// The book's own rates, when `[basis]` is configured.
+    pub fn book_rates(&self) -> Option<&BookRates> {
+        self.basis.as_ref().map(|b| &b.rates)
     }
 
     /// The book's expected PV on the central path with every q multiplied by `scale`.
@@ -152,13 +161,31 @@ impl ValuationSetup {
         let mut paths = projector.buffer();
         projector.generate(0, &mut paths)?;
         let mut ws = Workspace::default();
+        let mut book_buffers = crate::basis::BookBuffers::default();
+        let surfaces = match self.book_rates() {
+            Some(rates) => rates.apply(0, &paths.surfaces(), &mut book_buffers),
+            None => paths.surfaces(),
+        };
         self.prepared
-            .build_scaled_curves(&paths.surfaces(), scale, &mut ws)?;
+            .build_scaled_curves(&surfaces, scale, &mut ws)?;
         let mut value = ScenarioValue::default();
         self.prepared
             .value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);
         Ok(value.pv_expected)
     }
+}
+
+/// Writes `basis.json` when the config has a `[basis]`: the book's level, slope, spread and
+/// actual-to-expected figures, with the run's provenance.
+pub fn write_basis(config: &Config, provenance: &Provenance, setup: &ValuationSetup) -> Result<()> {
+    if let Some(basis) = &setup.basis {
+        let record = crate::io::provenance::Recorded {
+            run: provenance,
+            body: &basis.document,
+        };
+        crate::io::write_json(config.output_folder().join("basis.json"), &record)?;
+    }
+    Ok(())
 }
 
 /// What the valuation of a run (or of one shard) gives.
@@ -250,6 +277,14 @@ pub fn value_book(
     let settings = DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
+        book_rates: setup.book_rates(),
+        // Index hedges (parametric swaps, q-forwards) need the book on the index's rates.
+        index_cash: hedges.is_some_and(|h| {
+            !h.qforward.is_empty()
+                || h.swap
+                    .iter()
+                    .any(|s| s.floating == crate::hedge::spec::FloatingBasis::Parametric)
+        }),
     };
     let mut files = ValuationFiles::create(options, setup.year, true)?;
     let mut outcome = ValuationOutcome::default();
@@ -317,7 +352,20 @@ pub fn value_book(
                     }
                 }
                 if let Some((sampler, sample)) = &mut hedging {
-                    sampler.push(sample, outcome.stochastic - 1, &r.value)?;
+                    let index_cash = if r.index_cash.is_empty() {
+                        &r.value.cash_expected
+                    } else {
+                        &r.index_cash
+                    };
+                    sampler.push_with_index(
+                        sample,
+                        outcome.stochastic - 1,
+                        &r.value,
+                        index_cash,
+                    )?;
+                    if !r.index_cash.is_empty() {
+                        sample.pv_index.push(r.index_pv);
+                    }
                 }
             }
             progress(chunk.len() as u64);
@@ -351,6 +399,9 @@ pub fn input_hashes(config: &Config) -> Result<Vec<InputHash>> {
     }
     if let Some(candidate) = &config.data.candidate_book {
         paths.push(("candidate_book", config.resolve(candidate)));
+    }
+    if let (Some(_), Some(book)) = (&config.basis, &config.data.book_experience) {
+        paths.push(("book_experience", config.resolve(book)));
     }
     paths.iter().map(|(role, p)| hash_file(role, p)).collect()
 }
@@ -426,6 +477,7 @@ pub fn summarize(
             specs: &fits.specs,
             populations: &experience.populations,
             year: setup.year,
+            book_rates: setup.book_rates(),
         };
         let values = one_year_values(
             projector,
@@ -459,7 +511,40 @@ pub fn summarize(
         models: None,
         model_average: None,
         allocation: None,
+        decomposition: decomposition(config, setup, projector, outcome, best_estimate)?,
     })
+}
+
+/// Stochastic scenarios the capital decomposition values (seven measures each): the run's
+/// first ones, so that its memory and time stay bounded on very long runs.
+pub const DECOMPOSITION_SCENARIOS: usize = 20_000;
+
+/// `summary.json` → `decomposition`, when the book has its own basis and the run is
+/// stochastic.
+fn decomposition(
+    config: &Config,
+    setup: &ValuationSetup,
+    projector: &Projector,
+    outcome: &ValuationOutcome,
+    best_estimate: f64,
+) -> Result<Option<crate::risk::decomposition::Decomposition>> {
+    let Some(rates) = setup.book_rates() else {
+        return Ok(None);
+    };
+    if !config.projection.noise || outcome.stochastic == 0 {
+        return Ok(None);
+    }
+    let n = outcome.stochastic.min(DECOMPOSITION_SCENARIOS) as u64;
+    crate::risk::decomposition::decompose(
+        projector,
+        &setup.prepared,
+        rates,
+        config.projection.seed,
+        1..n + 1,
+        best_estimate,
+        &config.capital.levels,
+    )
+    .map(Some)
 }
 
 /// Prices and values the configured hedges on a whole run's valuation (gathered with

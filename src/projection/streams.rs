@@ -26,6 +26,10 @@ pub enum Purpose {
     CohortInnovations,
     /// The scenario's cohort-series terms under drift uncertainty.
     CohortDrift,
+    /// The book's level and slope against the population under level uncertainty.
+    BasisLevel,
+    /// Innovations of the book's spread over the population, one per projected year.
+    BasisSpread,
 }
 
 impl Purpose {
@@ -39,6 +43,8 @@ impl Purpose {
             Purpose::Experience => 0x6578_7065,
             Purpose::CohortInnovations => 0x636f_686f,
             Purpose::CohortDrift => 0x6364_7269,
+            Purpose::BasisLevel => 0x626c_6576,
+            Purpose::BasisSpread => 0x6273_7072,
         }
     }
 }

@@ -44,6 +44,8 @@ pub struct ReportData {
     /// the section out.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
+    /// The book against its population (`[basis]`); `None` leaves the section out.
+    pub book_basis: Option<crate::report::basis::BookBasisReport>,
 }
 
 /// Model risk: each valued model's fit, weight and figures, the mixture's, and the

@@ -272,6 +272,7 @@ impl ReportData {
             ],
             model_risk: None,
             allocation: None,
+            book_basis: None,
         }
     }
 }

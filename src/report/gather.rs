@@ -63,6 +63,8 @@ pub struct ReportInputs<'a> {
     pub provenance: &'a crate::io::Provenance,
     /// When the run started (ISO 8601, UTC).
     pub run_at: String,
+    /// The book's fitted basis, when `[basis]` is configured and a book was valued.
+    pub basis: Option<&'a crate::basis::FittedBasis>,
 }
 
 /// The report's data.
@@ -111,6 +113,19 @@ pub fn report_data(inputs: &ReportInputs<'_>) -> Result<ReportData> {
         hedges: Vec::new(),
         model_risk: None,
         allocation: inputs.summary.and_then(|s| s.allocation.clone()),
+        book_basis: inputs.basis.map(|b| {
+            let scenarios = if config.projection.noise {
+                config.projection.scenarios as u64
+            } else {
+                0
+            };
+            crate::report::basis::gather(
+                b,
+                inputs.summary,
+                inputs.projector.years().last,
+                scenarios,
+            )
+        }),
     };
     if let Some(outcome) = inputs.outcome {
         data.fans = fans(inputs, outcome);

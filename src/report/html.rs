@@ -94,6 +94,7 @@ pub fn page(data: &ReportData) -> Result<String> {
                 body,
             },
         ),
+        basis_section(data),
         projection_section(data)?,
         lifetime_section(&data.lifetimes)?,
         fit_section(data)?,
@@ -444,6 +445,99 @@ fn hedge_section(hedges: &[HedgeRow], currency: &str) -> Option<Section> {
     Some(Section {
         id: "hedges",
         heading: "Hedges",
+        body,
+    })
+}
+
+/// "Book against population": A/E by age band, the spread's fan, the decomposition.
+fn basis_section(data: &ReportData) -> Option<Section> {
+    let b = data.book_basis.as_ref()?;
+    let mut body = format!(
+        "<p class=\"note\">{}</p>\n",
+        escape(&format!(
+            "The book's log death rate against the population's fitted rate: level α0 = {} \
+             (s.e. {}) at the mean fitted age, slope α1 = {} (s.e. {}) a year of age; the \
+             yearly spread is an AR(1) with φ = {} and σ = {}.",
+            fixed(b.level, 4),
+            fixed(b.standard_errors[0], 4),
+            fixed(b.slope, 5),
+            fixed(b.standard_errors[1], 5),
+            fixed(b.spread[0], 3),
+            fixed(b.spread[1], 4)
+        ))
+    );
+    body.push_str(&table_head(
+        Some(
+            "Actual against expected deaths at the population's fitted rates, with the 95 % \
+             exact Poisson interval (Garwood 1936).",
+        ),
+        &["Ages", "#Actual", "#Expected", "#A/E", "#95 % interval"],
+    ));
+    let cells = |c: &crate::basis::actual_expected::Comparison| {
+        vec![
+            fixed(c.actual, 0),
+            fixed(c.expected, 1),
+            fixed(c.ratio, 3),
+            format!("{}–{}", fixed(c.lower, 3), fixed(c.upper, 3)),
+        ]
+    };
+    for band in &b.bands {
+        let label = format!("{}–{}", band.ages[0], band.ages[1]);
+        body.push_str(&row(&label, &cells(&band.comparison), None));
+    }
+    body.push_str(&row("All ages", &cells(&b.overall), Some("total")));
+    body.push_str("</tbody>\n</table>\n");
+    if !b.fan.is_empty() {
+        body.push_str(&table_head(
+            Some("The spread κ_t projected: quantiles over the scenarios."),
+            &["Year", "#5 %", "#Median", "#95 %"],
+        ));
+        for q in &b.fan {
+            body.push_str(&row(
+                &q.year.to_string(),
+                &[fixed(q.p05, 3), fixed(q.p50, 3), fixed(q.p95, 3)],
+                None,
+            ));
+        }
+        body.push_str("</tbody>\n</table>\n");
+    }
+    if let Some(d) = &b.decomposition {
+        let headers: Vec<String> = std::iter::once("Sources of risk".to_string())
+            .chain(
+                d.levels
+                    .iter()
+                    .map(|l| format!("#Capital at {}", format::level(*l))),
+            )
+            .collect();
+        let headers: Vec<&str> = headers.iter().map(String::as_str).collect();
+        body.push_str(&table_head(
+            Some(&format!(
+                "Run-off capital by source, in {}, from the same {} scenarios.",
+                data.currency, d.scenarios
+            )),
+            &headers,
+        ));
+        let name = |m: &str| match m {
+            "trend" => "Trend",
+            "trend_level" => "Trend + level",
+            "trend_level_spread" => "Trend + level + spread",
+            "all" => "All, with individual deaths",
+            "level" => "Level alone",
+            "spread" => "Spread alone",
+            "idiosyncratic" => "Individual deaths alone",
+            _ => "Other",
+        };
+        for m in d.cumulative.iter().chain(&d.standalone) {
+            let values: Vec<String> = m.capital.iter().map(|c| amount(*c)).collect();
+            body.push_str(&row(name(m.measure), &values, None));
+        }
+        let values: Vec<String> = d.diversification.iter().map(|c| amount(*c)).collect();
+        body.push_str(&row("Diversification", &values, Some("total")));
+        body.push_str("</tbody>\n</table>\n");
+    }
+    Some(Section {
+        id: "basis",
+        heading: "Book against population",
         body,
     })
 }

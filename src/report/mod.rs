@@ -7,6 +7,7 @@
 //! than drawn empty. Writing the page is the atomic writer's job ([`crate::io`]).
 
 pub mod allocation;
+pub mod basis;
 pub mod charts;
 pub mod data;
 mod example;

@@ -419,8 +419,15 @@ pub fn summarize_config(
     let fits = ProjectedFits::fit(config, &experience)?;
     let mut projector = fits.projector(config, &experience)?;
     let one_year = config.capital.one_year_scenarios as u64;
-    // The central path and the scenarios the one-year refits follow.
-    projector.prepare(0..one_year + 1)?;
+    // The central path and the scenarios the one-year refits and the decomposition follow.
+    let decomposed = if config.basis.is_some() {
+        (outcome
+            .stochastic
+            .min(crate::pipeline::DECOMPOSITION_SCENARIOS)) as u64
+    } else {
+        0
+    };
+    projector.prepare(0..one_year.max(decomposed) + 1)?;
     let setup = ValuationSetup::new(config, book, &projector)?;
     summarize(
         config,

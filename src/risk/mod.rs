@@ -6,6 +6,7 @@
 pub mod allocation;
 pub mod allocation_summary;
 pub mod capital;
+pub mod decomposition;
 pub mod merge;
 pub mod model_average;
 pub mod one_year;

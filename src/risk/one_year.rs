@@ -19,6 +19,7 @@ use nalgebra::DMatrix;
 use rand_distr::{Distribution, Poisson};
 use rayon::prelude::*;
 
+use crate::basis::{BookBuffers, BookRates};
 use crate::data::Population;
 use crate::data::sex::sex_index;
 use crate::error::{Error, Result};
@@ -36,6 +37,9 @@ pub struct Recalibration<'a> {
     /// The valuation year (the year of simulated experience is the years after the data
     /// up to and including it).
     pub year: i32,
+    /// The book's own rates (`[basis]`): the refitted population's rates become the
+    /// book's at the fitted level and the spread's expected path.
+    pub book_rates: Option<&'a BookRates>,
 }
 
 /// Values of the book after one year of news, one per scenario `1..=scenarios`.
@@ -129,6 +133,11 @@ fn one_scenario(
     }
     let mut ws = Workspace::default();
     let mut value = ScenarioValue::default();
+    let mut book_buffers = BookBuffers::default();
+    let surfaces = match recalibration.book_rates {
+        Some(rates) => rates.apply(0, &surfaces, &mut book_buffers),
+        None => surfaces,
+    };
     book.build_curves(&surfaces, &mut ws)?;
     book.value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);
     Ok(value.pv_expected)

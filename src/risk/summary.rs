@@ -94,4 +94,8 @@ pub struct RunSummary {
     /// `capital.allocation` is on.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub allocation: Option<crate::risk::allocation_summary::AllocationSummary>,
+    /// Run-off capital by source (trend, the book's level and spread, idiosyncratic), when
+    /// the book has its own basis (`[basis]`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub decomposition: Option<crate::risk::decomposition::Decomposition>,
 }

@@ -11,6 +11,7 @@ use std::ops::Range;
 
 use rayon::prelude::*;
 
+use crate::basis::{BookBuffers, BookRates, Uncertainty};
 use crate::data::Sex;
 use crate::error::{Error, Result};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
@@ -35,6 +36,13 @@ pub struct ScenarioResult {
     pub probes: Vec<f64>,
     /// Period e°65 by projected year, sex by sex (empty when not asked for).
     pub period: Vec<f64>,
+    /// With `[basis]` and [`DriverSettings::index_cash`]: the book's expected cash flows on
+    /// the population's path at the book's fitted level and expected spread, what an
+    /// index-based (parametric) hedge floats on; empty otherwise.
+    pub index_cash: Vec<f64>,
+    /// With [`ScenarioResult::index_cash`]: the book's PV on those rates, with individual
+    /// deaths when they are simulated (the same deaths stream); 0 otherwise.
+    pub index_pv: f64,
 }
 
 /// Scenario figures read off the rates besides the book's values: cells for the hedges
@@ -56,17 +64,24 @@ pub struct Extracts {
 
 /// What the driver does per scenario.
 #[derive(Debug, Clone, Copy)]
-pub struct DriverSettings {
+pub struct DriverSettings<'a> {
     /// Seed of the death streams (the projection's seed).
     pub seed: u64,
     /// Simulate each life's death as well as the trend.
     pub idiosyncratic: bool,
+    /// The book's own rates made from the population's (`[basis]`); `None` values the
+    /// book on the population's rates.
+    pub book_rates: Option<&'a BookRates>,
+    /// With `book_rates`, also value the book's expected cash flows at the fixed level and
+    /// expected spread on each population path ([`ScenarioResult::index_cash`]).
+    pub index_cash: bool,
 }
 
 struct Buffers {
     paths: ScenarioPaths,
     book: Workspace,
     lifetimes: LifetimeWorkspace,
+    book_rates: BookBuffers,
 }
 
 /// Values `book` in scenarios `ids`, handing each chunk's results, in scenario order, to
@@ -76,7 +91,7 @@ pub fn value_scenarios(
     book: &PreparedBook,
     lifetimes: Option<&LifetimeTable>,
     ids: Range<u64>,
-    settings: DriverSettings,
+    settings: DriverSettings<'_>,
     extracts: &Extracts,
     mut sink: impl FnMut(&[ScenarioResult]) -> Result<()>,
 ) -> Result<()> {
@@ -90,6 +105,7 @@ pub fn value_scenarios(
                     paths: projector.buffer(),
                     book: Workspace::default(),
                     lifetimes: LifetimeWorkspace::default(),
+                    book_rates: BookBuffers::default(),
                 },
                 |buffers, scenario| {
                     let mut result =
@@ -109,7 +125,7 @@ fn value_one(
     projector: &Projector,
     book: &PreparedBook,
     lifetimes: Option<&LifetimeTable>,
-    settings: DriverSettings,
+    settings: DriverSettings<'_>,
     buffers: &mut Buffers,
     scenario: u64,
 ) -> Result<ScenarioResult> {
@@ -122,13 +138,36 @@ fn value_one(
         book,
         settings,
         scenario,
-        (&mut buffers.paths, &mut buffers.book),
+        (
+            &mut buffers.paths,
+            &mut buffers.book,
+            &mut buffers.book_rates,
+        ),
         &mut result.value,
         &mut NoPolicies,
     )?;
     if let Some(table) = lifetimes {
         let surfaces = buffers.paths.surfaces();
         table.compute(&surfaces, &mut buffers.lifetimes, &mut result.lifetimes)?;
+    }
+    if let (true, Some(rates)) = (settings.index_cash, settings.book_rates) {
+        let fixed = Uncertainty {
+            level: false,
+            spread: false,
+        };
+        let population = buffers.paths.surfaces();
+        let index = rates.apply_with(fixed, scenario, &population, &mut buffers.book_rates);
+        book.build_curves(&index, &mut buffers.book)?;
+        let mut value = ScenarioValue::default();
+        if settings.idiosyncratic {
+            let mut rng = stream(settings.seed, scenario, Purpose::Deaths);
+            book.value(&mut buffers.book, Some(&mut rng), &mut value);
+            result.index_pv = value.pv_simulated;
+        } else {
+            book.value::<rand_chacha::ChaCha8Rng>(&mut buffers.book, None, &mut value);
+            result.index_pv = value.pv_expected;
+        }
+        result.index_cash = value.cash_expected;
     }
     Ok(result)
 }
@@ -139,15 +178,20 @@ fn value_one(
 pub fn value_in_scenario<P: PolicySink>(
     projector: &Projector,
     book: &PreparedBook,
-    settings: DriverSettings,
+    settings: DriverSettings<'_>,
     scenario: u64,
-    buffers: (&mut ScenarioPaths, &mut Workspace),
+    buffers: (&mut ScenarioPaths, &mut Workspace, &mut BookBuffers),
     out: &mut ScenarioValue,
     policies: &mut P,
 ) -> Result<()> {
-    let (paths, ws) = buffers;
+    let (paths, ws, book_buffers) = buffers;
     projector.generate(scenario, paths)?;
-    book.build_curves(&paths.surfaces(), ws)?;
+    let population = paths.surfaces();
+    let surfaces = match settings.book_rates {
+        Some(rates) => rates.apply(scenario, &population, book_buffers),
+        None => population,
+    };
+    book.build_curves(&surfaces, ws)?;
     if settings.idiosyncratic {
         let mut rng = stream(settings.seed, scenario, Purpose::Deaths);
         book.value_policies(ws, Some(&mut rng), out, policies);

@@ -8,6 +8,7 @@
 //! to a [`PolicySink`] where it adds them to the book's total: the draws and the products
 //! are the book's, only the order of the final additions differs.
 
+use crate::basis::BookBuffers;
 use crate::data::Book;
 use crate::error::{Error, Result};
 use crate::projection::{Projector, ScenarioPaths};
@@ -32,7 +33,7 @@ pub struct PolicyValues {
 pub struct PolicyReplay<'a> {
     projector: &'a Projector,
     prepared: &'a PreparedBook,
-    settings: DriverSettings,
+    settings: DriverSettings<'a>,
     /// Amount × weight of each policy, in book order.
     totals: Vec<f64>,
 }
@@ -41,6 +42,7 @@ pub struct PolicyReplay<'a> {
 pub struct ReplayBuffers {
     paths: ScenarioPaths,
     book: Workspace,
+    book_rates: BookBuffers,
     block_pv: Vec<f64>,
 }
 
@@ -75,7 +77,7 @@ impl<'a> PolicyReplay<'a> {
         book: &Book,
         prepared: &'a PreparedBook,
         projector: &'a Projector,
-        settings: DriverSettings,
+        settings: DriverSettings<'a>,
     ) -> Result<Self> {
         if book.policies.len() != prepared.policy_blocks().len() {
             return Err(Error::model(
@@ -110,6 +112,7 @@ impl<'a> PolicyReplay<'a> {
         ReplayBuffers {
             paths: self.projector.buffer(),
             book: Workspace::default(),
+            book_rates: BookBuffers::default(),
             block_pv: vec![0.0; self.prepared.blocks()],
         }
     }
@@ -137,7 +140,11 @@ impl<'a> PolicyReplay<'a> {
             self.prepared,
             self.settings,
             scenario,
-            (&mut buffers.paths, &mut buffers.book),
+            (
+                &mut buffers.paths,
+                &mut buffers.book,
+                &mut buffers.book_rates,
+            ),
             &mut out.book,
             &mut spread,
         )?;

@@ -748,7 +748,11 @@ fn synth_is_deterministic_in_the_seed() {
             String::from_utf8_lossy(&out.stderr)
         );
         let read = |f: &str| std::fs::read(dir.path().join(name).join(f)).unwrap();
-        (read("experience.csv"), read("book.csv"))
+        (
+            read("experience.csv"),
+            read("book.csv"),
+            read("book-experience.csv"),
+        )
     };
     let a = write("a", "7");
     let b = write("b", "7");
@@ -756,8 +760,9 @@ fn synth_is_deterministic_in_the_seed() {
     assert_eq!(a, b);
     assert_ne!(a.0, c.0);
     assert_ne!(a.1, c.1);
-    // Only the two files, no temporary leftovers.
-    assert_eq!(std::fs::read_dir(dir.path().join("a")).unwrap().count(), 2);
+    assert_ne!(a.2, c.2);
+    // Only the three files, no temporary leftovers.
+    assert_eq!(std::fs::read_dir(dir.path().join("a")).unwrap().count(), 3);
 }
 
 #[test]

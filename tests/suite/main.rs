@@ -6,6 +6,8 @@ mod models_support;
 mod projection_support;
 
 mod allocation_cli;
+mod basis_cli;
+mod basis_reference;
 mod cli_check;
 mod cohort_cli;
 mod data_loaders;

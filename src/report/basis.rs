@@ -1,0 +1,96 @@
+//! The report's "Book against population" section: how the book's deaths compare with
+//! the population's fitted rates, where its spread may go, and what each source of risk
+//! adds to the capital. Gathered from the fitted basis and the summary, rendered as tables
+//! a committee can read without the JSON.
+
+use serde::Serialize;
+
+use crate::basis::FittedBasis;
+use crate::basis::actual_expected::{BandComparison, Comparison};
+use crate::basis::book_rates::ScenarioBasis;
+use crate::risk::decomposition::Decomposition;
+use crate::risk::quantile::{quantile_sorted, sorted};
+use crate::risk::summary::RunSummary;
+
+/// Scenarios whose spread paths make the fan: enough for its 5 % and 95 % quantiles.
+pub const FAN_SCENARIOS: u64 = 2_000;
+
+/// Projected years between the fan's rows.
+pub const FAN_STEP_YEARS: i32 = 5;
+
+/// Quantiles of the projected spread κ_t in one year.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct SpreadQuantiles {
+    /// Calendar year.
+    pub year: i32,
+    /// 5 % quantile.
+    pub p05: f64,
+    /// Median.
+    pub p50: f64,
+    /// 95 % quantile.
+    pub p95: f64,
+}
+
+/// What the section shows.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BookBasisReport {
+    /// α0 and α1.
+    pub level: f64,
+    /// α1.
+    pub slope: f64,
+    /// Standard errors of α0 and α1.
+    pub standard_errors: [f64; 2],
+    /// φ and σ of the spread.
+    pub spread: [f64; 2],
+    /// Every cell together.
+    pub overall: Comparison,
+    /// By five-year age band.
+    pub bands: Vec<BandComparison>,
+    /// The spread's fan, every [`FAN_STEP_YEARS`] years (empty when the spread is not
+    /// drawn).
+    pub fan: Vec<SpreadQuantiles>,
+    /// The capital decomposition, when the run was stochastic.
+    pub decomposition: Option<Decomposition>,
+}
+
+/// The section's data from the fitted basis, the summary and the projection's last year.
+pub fn gather(
+    basis: &FittedBasis,
+    summary: Option<&RunSummary>,
+    last_year: i32,
+    scenarios: u64,
+) -> BookBasisReport {
+    let d = &basis.document;
+    let rates = &basis.rates;
+    let n = scenarios.min(FAN_SCENARIOS);
+    let mut fan = Vec::new();
+    if rates.uncertainty().spread && n > 0 {
+        let mut paths: Vec<Vec<f64>> = Vec::with_capacity(n as usize);
+        let (mut draw, mut shocks) = (ScenarioBasis::default(), Vec::new());
+        for s in 1..=n {
+            rates.draw(rates.uncertainty(), s, last_year, &mut draw, &mut shocks);
+            paths.push(draw.spread.clone());
+        }
+        let first = draw.first_year;
+        let years = paths.first().map_or(0, Vec::len);
+        for h in (0..years).step_by(FAN_STEP_YEARS as usize) {
+            let column = sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>());
+            fan.push(SpreadQuantiles {
+                year: first + h as i32,
+                p05: quantile_sorted(&column, 0.05),
+                p50: quantile_sorted(&column, 0.5),
+                p95: quantile_sorted(&column, 0.95),
+            });
+        }
+    }
+    BookBasisReport {
+        level: d.level,
+        slope: d.slope,
+        standard_errors: [d.covariance[0][0].sqrt(), d.covariance[1][1].sqrt()],
+        spread: [d.spread.phi, d.spread.sigma],
+        overall: d.actual_to_expected.overall.clone(),
+        bands: d.actual_to_expected.by_age_band.clone(),
+        fan,
+        decomposition: summary.and_then(|s| s.decomposition.clone()),
+    }
+}
