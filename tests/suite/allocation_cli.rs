@@ -205,10 +205,12 @@ fn setup(path: &Path) -> Setup {
     }
 }
 
-fn settings(config: &Config) -> DriverSettings {
+fn settings(config: &Config) -> DriverSettings<'static> {
     DriverSettings {
         seed: config.projection.seed,
         idiosyncratic: config.valuation.idiosyncratic,
+        book_rates: None,
+        index_cash: false,
     }
 }
 

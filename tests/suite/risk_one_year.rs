@@ -97,6 +97,7 @@ fn one_year_values_equal_cold_refits_within_the_tolerance() {
             specs,
             populations: &experience.populations,
             year: setup.year,
+            book_rates: None,
         };
         one_year_values(&projector, &setup.prepared, &recalibration, n).unwrap()
     };
