@@ -22,12 +22,14 @@ use crate::io::AtomicFile;
 pub const DEMO_VALUATION_DATE: &str = "2025-01-01";
 
 /// Files `write_layouts` adds beside the CSV files.
-pub const LAYOUT_FILES: [&str; 5] = [
+pub const LAYOUT_FILES: [&str; 7] = [
     "book-dates.csv",
     "deaths.txt",
     "exposures.txt",
     "book.xlsx",
     "experience.xlsx",
+    "book.ods",
+    "experience.ods",
 ];
 
 /// Writes every layout of `experience` and `book` into `dir`, all under temporary names
@@ -41,6 +43,8 @@ pub fn write_layouts(dir: &Path, experience: &Experience, book: &Book) -> Result
         published(&dir.join(LAYOUT_FILES[2]), experience, Figure::Exposures)?,
         book_sheet(&dir.join(LAYOUT_FILES[3]), book)?,
         experience_sheet(&dir.join(LAYOUT_FILES[4]), experience)?,
+        book_sheet(&dir.join(LAYOUT_FILES[5]), book)?,
+        experience_sheet(&dir.join(LAYOUT_FILES[6]), experience)?,
     ])
 }
 
@@ -155,11 +159,90 @@ fn published(path: &Path, experience: &Experience, figure: Figure) -> Result<Ato
     Ok(file)
 }
 
-/// A workbook with one sheet `name` of `header` and `rows`; cells that parse as numbers
-/// are written as numbers, the others as text.
+/// A workbook with one sheet `name` of `header` and `rows`, as `.xlsx` or `.ods` by the
+/// path's ending; cells that parse as numbers are written as numbers, the others as text.
 fn sheet(path: &Path, name: &str, header: &[&str], rows: &[Vec<String>]) -> Result<AtomicFile> {
+    let bytes = if path.extension().is_some_and(|e| e == "ods") {
+        ods_bytes(name, header, rows).map_err(|e| Error::io(path, e))?
+    } else {
+        xlsx_bytes(path, name, header, rows)?
+    };
+    let mut file = AtomicFile::create(path)?;
+    file.write_all(&bytes).map_err(|e| Error::io(path, e))?;
+    Ok(file)
+}
+
+/// An OpenDocument spreadsheet: the `mimetype` entry first and uncompressed, a manifest,
+/// and the sheet in `content.xml` (OpenDocument 1.2, part 3, section 3.3).
+fn ods_bytes(name: &str, header: &[&str], rows: &[Vec<String>]) -> std::io::Result<Vec<u8>> {
+    use zip::write::SimpleFileOptions;
+    let escape = |text: &str| {
+        text.replace('&', "&amp;")
+            .replace('<', "&lt;")
+            .replace('>', "&gt;")
+            .replace('"', "&quot;")
+    };
+    let mut content = format!(
+        "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<office:document-content \
+         xmlns:office=\"urn:oasis:names:tc:opendocument:xmlns:office:1.0\" \
+         xmlns:table=\"urn:oasis:names:tc:opendocument:xmlns:table:1.0\" \
+         xmlns:text=\"urn:oasis:names:tc:opendocument:xmlns:text:1.0\" office:version=\"1.2\">\
+         <office:body><office:spreadsheet><table:table table:name=\"{}\">",
+        escape(name)
+    );
+    let header: Vec<String> = header.iter().map(|h| h.to_string()).collect();
+    for row in std::iter::once(&header).chain(rows) {
+        content.push_str("<table:table-row>");
+        for cell in row {
+            match cell.parse::<f64>() {
+                _ if cell.is_empty() => content.push_str("<table:table-cell/>"),
+                Ok(x) if x.is_finite() => content.push_str(&format!(
+                    "<table:table-cell office:value-type=\"float\" office:value=\"{x}\"><text:p>{x}</text:p></table:table-cell>"
+                )),
+                _ => content.push_str(&format!(
+                    "<table:table-cell office:value-type=\"string\"><text:p>{}</text:p></table:table-cell>",
+                    escape(cell)
+                )),
+            }
+        }
+        content.push_str("</table:table-row>");
+    }
+    content
+        .push_str("</table:table></office:spreadsheet></office:body></office:document-content>\n");
+    let manifest = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n<manifest:manifest \
+        xmlns:manifest=\"urn:oasis:names:tc:opendocument:xmlns:manifest:1.0\" manifest:version=\"1.2\">\
+        <manifest:file-entry manifest:full-path=\"/\" \
+        manifest:media-type=\"application/vnd.oasis.opendocument.spreadsheet\"/>\
+        <manifest:file-entry manifest:full-path=\"content.xml\" manifest:media-type=\"text/xml\"/>\
+        </manifest:manifest>\n";
+    let mut zip = zip::ZipWriter::new(std::io::Cursor::new(Vec::new()));
+    let stored = SimpleFileOptions::default().compression_method(zip::CompressionMethod::Stored);
+    let deflated =
+        SimpleFileOptions::default().compression_method(zip::CompressionMethod::Deflated);
+    let parts: [(&str, &str, SimpleFileOptions); 3] = [
+        (
+            "mimetype",
+            "application/vnd.oasis.opendocument.spreadsheet",
+            stored,
+        ),
+        ("META-INF/manifest.xml", manifest, deflated),
+        ("content.xml", &content, deflated),
+    ];
+    for (part, text, options) in parts {
+        zip.start_file(part, options)
+            .map_err(std::io::Error::other)?;
+        zip.write_all(text.as_bytes())?;
+    }
+    Ok(zip.finish().map_err(std::io::Error::other)?.into_inner())
+}
+
+/// An Office Open XML workbook (`.xlsx`) by rust_xlsxwriter.
+fn xlsx_bytes(path: &Path, name: &str, header: &[&str], rows: &[Vec<String>]) -> Result<Vec<u8>> {
     let fail = |e: rust_xlsxwriter::XlsxError| Error::io(path, std::io::Error::other(e));
     let mut workbook = rust_xlsxwriter::Workbook::new();
+    // A fixed creation time (the demo's valuation date) keeps the file the same for a seed.
+    let created = rust_xlsxwriter::ExcelDateTime::from_ymd(2025, 1, 1).map_err(fail)?;
+    workbook.set_properties(&rust_xlsxwriter::DocProperties::new().set_creation_datetime(&created));
     let sheet = workbook.add_worksheet();
     sheet.set_name(name).map_err(fail)?;
     for (c, h) in header.iter().enumerate() {
@@ -179,10 +262,7 @@ fn sheet(path: &Path, name: &str, header: &[&str], rows: &[Vec<String>]) -> Resu
             }
         }
     }
-    let bytes = workbook.save_to_buffer().map_err(fail)?;
-    let mut file = AtomicFile::create(path)?;
-    file.write_all(&bytes).map_err(|e| Error::io(path, e))?;
-    Ok(file)
+    workbook.save_to_buffer().map_err(fail)
 }
 
 fn book_sheet(path: &Path, book: &Book) -> Result<AtomicFile> {

@@ -20,7 +20,7 @@ pub struct SynthArgs {
     pub policies: usize,
     /// Also write the demo in the other input layouts: a book with dates of birth
     /// (`book-dates.csv`), published tables (`deaths.txt`, `exposures.txt`) and
-    /// spreadsheets (`book.xlsx`, `experience.xlsx`).
+    /// spreadsheets (`book.xlsx`, `experience.xlsx`, `book.ods`, `experience.ods`).
     #[arg(long)]
     pub formats: bool,
 }

@@ -118,8 +118,17 @@ impl PublishedTable {
         let header_index = lines
             .iter()
             .take(MAX_PREAMBLE_LINES + 1)
-            .position(|line| is_header(line))
-            .ok_or_else(|| Error::File {
+            .position(|line| is_header(line));
+        if header_index.is_none()
+            && let Some((index, rule)) = lines
+                .iter()
+                .take(MAX_PREAMBLE_LINES + 1)
+                .enumerate()
+                .find_map(|(i, line)| near_header(line).map(|rule| (i, rule)))
+        {
+            return Err(row_error(index + 1, rule));
+        }
+        let header_index = header_index.ok_or_else(|| Error::File {
                 file: file.clone(),
                 rule: format!(
                     "no header line `{}` in the first {} lines: a published table opens with at most {MAX_PREAMBLE_LINES} lines of text, then that line",
@@ -363,6 +372,31 @@ fn is_header(line: &str) -> bool {
             .all(|(n, c)| *n == c.to_lowercase())
 }
 
+/// For a line that is nearly the header (five names, most of them right), what is wrong
+/// with it and the names meant.
+fn near_header(line: &str) -> Option<String> {
+    let names: Vec<&str> = line.split_whitespace().collect();
+    let right = names
+        .iter()
+        .zip(PUBLISHED_COLUMNS)
+        .filter(|(n, c)| n.eq_ignore_ascii_case(c))
+        .count();
+    if names.len() != PUBLISHED_COLUMNS.len() || right < 3 {
+        return None;
+    }
+    let wrong: Vec<String> = names
+        .iter()
+        .zip(PUBLISHED_COLUMNS)
+        .filter(|(n, c)| !n.eq_ignore_ascii_case(c))
+        .map(|(n, _)| format!("`{n}`{}", crate::data::suggest::hint(n, PUBLISHED_COLUMNS)))
+        .collect();
+    Some(format!(
+        "the header line must read `{}`; unknown column {}",
+        PUBLISHED_COLUMNS.join(" "),
+        wrong.join(", ")
+    ))
+}
+
 /// The whitespace-separated fields of `line` with their character span (start, end).
 fn fields(line: &str) -> Vec<(usize, usize, &str)> {
     let mut out = Vec::new();
@@ -496,6 +530,18 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.contains("row 5, column `Total`"), "{err}");
+    }
+
+    #[test]
+    fn a_misspelt_header_is_named() {
+        let text = TABLE.replace("Female", "Femal");
+        let err = PublishedTable::parse(text.as_bytes(), Path::new("d.txt"))
+            .unwrap_err()
+            .to_string();
+        assert!(
+            err.contains("row 4") && err.contains("`Femal` (did you mean `Female`?)"),
+            "{err}"
+        );
     }
 
     #[test]

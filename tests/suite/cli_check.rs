@@ -226,6 +226,10 @@ const DEATHS: &[Case] = &[
             "line 13",
         ],
     ),
+    (
+        "misspelt_header.txt",
+        &["row 4", "unknown column `Males` (did you mean `Male`?)"],
+    ),
     ("extra_field.txt", &["row 7", "has 6 fields", "5 columns"]),
 ];
 

@@ -163,6 +163,26 @@ fn synth_formats_fit_and_value_as_the_csv_demo() {
         .arg(&demo)
         .output()
         .unwrap());
+    // The same seed writes the same bytes in every layout.
+    let again = dir.path().join("again");
+    ok(bin()
+        .args(["synth", "--policies", "400", "--formats", "--out"])
+        .arg(&again)
+        .output()
+        .unwrap());
+    let mut names: Vec<_> = std::fs::read_dir(&demo)
+        .unwrap()
+        .map(|e| e.unwrap().file_name())
+        .collect();
+    names.sort();
+    assert_eq!(names.len(), 9, "{names:?}");
+    for name in &names {
+        assert_eq!(
+            std::fs::read(demo.join(name)).unwrap(),
+            std::fs::read(again.join(name)).unwrap(),
+            "{name:?}"
+        );
+    }
     let d = |f: &str| format!("{:?}", demo.join(f));
     let layouts = [
         (
@@ -199,6 +219,15 @@ fn synth_formats_fit_and_value_as_the_csv_demo() {
                 "experience = {}\nbook = {}",
                 d("experience.xlsx#Experience"),
                 d("book.xlsx")
+            ),
+            String::new(),
+        ),
+        (
+            "ods",
+            format!(
+                "experience = {}\nbook = {}",
+                d("experience.ods"),
+                d("book.ods#Policies")
             ),
             String::new(),
         ),
