@@ -106,6 +106,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
                     fits,
                     outcome,
                     summary,
+                    hedges: None,
                 })
             })
             .collect();
