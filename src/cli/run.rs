@@ -125,6 +125,7 @@ pub fn run(args: &RunArgs, quiet: bool, verbose: bool) -> Result<()> {
                         fits: &r.fits,
                         outcome: &v.outcome,
                         summary: &v.summary,
+                        hedges: v.hedges.as_ref(),
                     })
                 })
                 .collect();

@@ -129,6 +129,7 @@ pub fn run(args: &ValueArgs, quiet: bool) -> Result<()> {
                     fits,
                     outcome,
                     summary,
+                    hedges: None,
                 })
             })
             .collect();

@@ -17,6 +17,7 @@ use tempfile::TempDir;
 use crate::data::Config;
 use crate::data::config::ModelKind;
 use crate::error::{Error, Result};
+use crate::hedge::HedgeResults;
 use crate::io::model_column::{ModelPart, gather_models};
 use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, STREAMED_ROWS_PER_GROUP};
 use crate::io::{AtomicFile, Provenance};
@@ -24,7 +25,8 @@ use crate::pipeline::{ProjectedFits, ValuationOutcome};
 use crate::projection::OutputOptions;
 use crate::projection::engine::ROW_GROUP_ROWS;
 use crate::risk::model_average::{
-    Mixture, MixtureFigures, ModelAverage, ModelFigures, bic_weights, normalized,
+    HedgedSample, Mixture, MixtureFigures, MixtureHedge, ModelAverage, ModelFigures, bic_weights,
+    normalized,
 };
 use crate::risk::order::Sample;
 use crate::risk::summary::RunSummary;
@@ -175,6 +177,8 @@ pub struct ValuedModel<'a> {
     pub outcome: &'a ValuationOutcome,
     /// Its figures as a run of this kind alone gives them.
     pub summary: &'a RunSummary,
+    /// Its hedges' per-scenario values, when hedges were priced.
+    pub hedges: Option<&'a HedgeResults>,
 }
 
 /// Every stochastic PV of `column` in the kind's book, or the central path's when there
@@ -248,6 +252,7 @@ pub fn compare_models(
         .idiosyncratic
         .then(|| mixture("pv_simulated"))
         .transpose()?;
+    let hedges = mixture_hedges(models, &weights, levels)?;
     Ok((
         figures,
         ModelAverage {
@@ -256,6 +261,55 @@ pub fn compare_models(
             best_estimate_spread: spread,
             trend,
             trend_idiosyncratic,
+            hedges,
         },
     ))
+}
+
+/// Each hedge on the mixture, when every model priced the hedges: the book's PV sample the
+/// hedges were valued on and each contract's value to the owner, per model.
+fn mixture_hedges(
+    models: &[ValuedModel<'_>],
+    weights: &[f64],
+    levels: &[f64],
+) -> Result<Option<Vec<MixtureHedge>>> {
+    let mut priced = Vec::with_capacity(models.len());
+    for m in models {
+        match (m.hedges, &m.outcome.hedge_sample) {
+            (Some(h), Some(sample)) => priced.push((h, sample)),
+            _ => return Ok(None),
+        }
+    }
+    let Some((first, _)) = priced.first() else {
+        return Ok(None);
+    };
+    first
+        .values
+        .iter()
+        .enumerate()
+        .map(|(c, (name, _))| {
+            let samples = priced
+                .iter()
+                .map(|(h, sample)| {
+                    let legs = match h.values.get(c) {
+                        Some((n, legs)) if n == name => legs,
+                        _ => {
+                            return Err(Error::model(
+                                "hedge",
+                                format!("contract `{name}` was not priced under every model"),
+                            ));
+                        }
+                    };
+                    Ok(HedgedSample {
+                        book_pv: &sample.pv,
+                        best_estimate: sample.best_estimate(),
+                        net: &legs.net,
+                        net_central: legs.net_central,
+                    })
+                })
+                .collect::<Result<Vec<_>>>()?;
+            MixtureHedge::new(name, weights, &samples, levels)
+        })
+        .collect::<Result<Vec<_>>>()
+        .map(Some)
 }

@@ -170,6 +170,107 @@ pub struct ModelAverage {
     pub trend: MixtureFigures,
     /// Trend and idiosyncratic risk (`pv_simulated`), when individual deaths are simulated.
     pub trend_idiosyncratic: Option<MixtureFigures>,
+    /// Each hedge's effect on the mixture, when hedges are priced.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub hedges: Option<Vec<MixtureHedge>>,
+}
+
+/// One hedge on the mixture: each model's scenarios carry the hedge as priced under that
+/// model, and the mixture's capital is compared with and without it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MixtureHedge {
+    /// Contract name from the config.
+    pub contract: String,
+    /// Σ_m w_m BE_m (the hedges' own best estimate: the PV on each central path).
+    pub best_estimate_unhedged: f64,
+    /// Σ_m w_m (BE_m − hedge value to the owner on model m's central path).
+    pub best_estimate_hedged: f64,
+    /// Per level: mixture VaR and capital without and with the hedge.
+    pub tails: Vec<MixtureHedgeTail>,
+}
+
+/// The mixture's tail at one level with and without a hedge.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MixtureHedgeTail {
+    /// Confidence level.
+    pub level: f64,
+    /// Mixture VaR of the book's PV.
+    pub var_unhedged: f64,
+    /// Mixture VaR of the PV less the hedge's value to the owner.
+    pub var_hedged: f64,
+    /// VaR − BE without the hedge.
+    pub capital_unhedged: f64,
+    /// VaR − BE with the hedge (both hedged).
+    pub capital_hedged: f64,
+    /// 100 × (1 − hedged / unhedged capital); `None` when the book needs no capital.
+    pub capital_reduction_pct: Option<f64>,
+}
+
+/// One model's view of one hedge: the book's PV and the hedge's value to the owner per
+/// scenario, and on the central path.
+#[derive(Debug, Clone, Copy)]
+pub struct HedgedSample<'a> {
+    /// The book's PV per scenario.
+    pub book_pv: &'a [f64],
+    /// The book's best estimate.
+    pub best_estimate: f64,
+    /// The hedge's value to the owner per scenario.
+    pub net: &'a [f64],
+    /// Its value on the central path.
+    pub net_central: f64,
+}
+
+impl MixtureHedge {
+    /// The hedge `contract` on the mixture of `samples` (one per model) with `weights`.
+    pub fn new(
+        contract: &str,
+        weights: &[f64],
+        samples: &[HedgedSample<'_>],
+        levels: &[f64],
+    ) -> Result<Self> {
+        let w = normalized(weights);
+        let unhedged = Mixture::new(&w, samples.iter().map(|s| s.book_pv.to_vec()).collect())?;
+        let hedged = Mixture::new(
+            &w,
+            samples
+                .iter()
+                .map(|s| s.book_pv.iter().zip(s.net).map(|(p, h)| p - h).collect())
+                .collect(),
+        )?;
+        let be: f64 = samples
+            .iter()
+            .zip(&w)
+            .map(|(s, w)| w * s.best_estimate)
+            .sum();
+        let be_hedged: f64 = samples
+            .iter()
+            .zip(&w)
+            .map(|(s, w)| w * (s.best_estimate - s.net_central))
+            .sum();
+        let tails = levels
+            .iter()
+            .map(|&level| {
+                let (var_unhedged, var_hedged) = (unhedged.var(level), hedged.var(level));
+                let (capital_unhedged, capital_hedged) =
+                    (var_unhedged - be, var_hedged - be_hedged);
+                MixtureHedgeTail {
+                    level,
+                    var_unhedged,
+                    var_hedged,
+                    capital_unhedged,
+                    capital_hedged,
+                    capital_reduction_pct: (capital_unhedged > 0.0)
+                        .then(|| 100.0 * (1.0 - capital_hedged / capital_unhedged)),
+                }
+            })
+            .collect();
+        Ok(MixtureHedge {
+            contract: contract.to_string(),
+            best_estimate_unhedged: be,
+            best_estimate_hedged: be_hedged,
+            tails,
+        })
+    }
 }
 
 /// `summary.json` → `models[]`: one valued model's fit quality, weight and figures.
@@ -251,6 +352,38 @@ mod tests {
         assert!((m.tail_mean(19.0) - 19.5).abs() < 1e-12);
         // Mean 0.25·5.5 + 0.75·15.5 = 13.
         assert!((m.mean() - 13.0).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_hedge_that_pays_the_excess_removes_the_mixture_capital() {
+        // Two models, PVs 1..=10 and 11..=20, BE 5 and 15, weights 1:1; a hedge paying
+        // PV − BE_m in every scenario (and 0 on the central path) leaves every hedged PV
+        // at its model's BE, so the hedged mixture VaR at 0.89 is 15 (G(5) = 0.5,
+        // G(15) = 1) and the hedged capital 15 − 10 = 5; unhedged, G(17) = 0.5 + 0.35 <
+        // 0.89 ≤ G(18) = 0.5 + 0.4, so VaR 18 and capital 18 − 10 = 8 (hand count).
+        let a: Vec<f64> = (1..=10).map(f64::from).collect();
+        let b: Vec<f64> = (11..=20).map(f64::from).collect();
+        let na: Vec<f64> = a.iter().map(|x| x - 5.0).collect();
+        let nb: Vec<f64> = b.iter().map(|x| x - 15.0).collect();
+        let samples = [
+            HedgedSample {
+                book_pv: &a,
+                best_estimate: 5.0,
+                net: &na,
+                net_central: 0.0,
+            },
+            HedgedSample {
+                book_pv: &b,
+                best_estimate: 15.0,
+                net: &nb,
+                net_central: 0.0,
+            },
+        ];
+        let h = MixtureHedge::new("swap", &[1.0, 1.0], &samples, &[0.89]).unwrap();
+        let t = &h.tails[0];
+        assert_eq!((t.var_unhedged, t.capital_unhedged), (18.0, 8.0));
+        assert_eq!((t.var_hedged, t.capital_hedged), (15.0, 5.0));
+        assert!((t.capital_reduction_pct.unwrap() - 100.0 * (1.0 - 5.0 / 8.0)).abs() < 1e-12);
     }
 
     #[test]

@@ -199,6 +199,85 @@ fn each_model_equals_its_own_run_and_the_weights_follow_the_bic() {
         .collect();
     let spread = average["best_estimate_spread"].as_f64().unwrap();
     assert_eq!(spread, (be[0] - be[1]).abs());
+
+    // The hedges on the mixture, recomputed from the files: per model the book's PV with
+    // deaths simulated and each contract's net value per scenario; VaR the smallest value
+    // whose weighted empirical distribution functions reach the level (written out here).
+    let weights: Vec<f64> = models
+        .iter()
+        .map(|m| m["weight"].as_f64().unwrap())
+        .collect();
+    let names = ["lee-carter", "cbd"];
+    let pvs = samples(&out("both", "book.parquet"), "pv_simulated", &names);
+    let var = |values: &[Vec<f64>], p: f64| -> f64 {
+        let mut support: Vec<f64> = values.iter().flatten().copied().collect();
+        support.sort_by(f64::total_cmp);
+        let cdf = |v: f64| -> f64 {
+            values
+                .iter()
+                .zip(&weights)
+                .map(|(x, w)| w * (x.iter().filter(|&&y| y <= v).count() as f64 / x.len() as f64))
+                .sum()
+        };
+        *support.iter().find(|&&v| cdf(v) >= p).unwrap()
+    };
+    let hedge = batches(&out("both", "hedge.parquet"));
+    let mixed = average["hedges"].as_array().unwrap();
+    assert_eq!(mixed.len(), 3);
+    for (c, contract) in mixed.iter().enumerate() {
+        let name = contract["contract"].as_str().unwrap();
+        let nets: Vec<Vec<f64>> = names
+            .iter()
+            .map(|model| {
+                let mut v = Vec::new();
+                for b in &hedge {
+                    let m = b.column_by_name("model").unwrap();
+                    let m = m.as_any().downcast_ref::<StringArray>().unwrap();
+                    let k = b.column_by_name("contract").unwrap();
+                    let k = k.as_any().downcast_ref::<StringArray>().unwrap();
+                    let n = b.column_by_name("net").unwrap();
+                    let n = n.as_any().downcast_ref::<Float64Array>().unwrap();
+                    v.extend(
+                        (0..b.num_rows())
+                            .filter(|&i| m.value(i) == *model && k.value(i) == name)
+                            .map(|i| n.value(i)),
+                    );
+                }
+                v
+            })
+            .collect();
+        let hedged: Vec<Vec<f64>> = pvs
+            .iter()
+            .zip(&nets)
+            .map(|(p, n)| p.iter().zip(n).map(|(p, n)| p - n).collect())
+            .collect();
+        let be_hedged: f64 = models
+            .iter()
+            .zip(&weights)
+            .map(|(m, w)| {
+                w * m["hedges"]["contracts"][c]["effectiveness"]["best_estimate_hedged"]
+                    .as_f64()
+                    .unwrap()
+            })
+            .sum();
+        let tail = &contract["tails"][0];
+        let level = tail["level"].as_f64().unwrap();
+        assert_eq!(
+            tail["var_unhedged"].as_f64().unwrap(),
+            var(&pvs, level),
+            "{name}"
+        );
+        assert_eq!(
+            tail["var_hedged"].as_f64().unwrap(),
+            var(&hedged, level),
+            "{name}"
+        );
+        let capital = tail["capital_hedged"].as_f64().unwrap();
+        assert!(
+            (capital - (var(&hedged, level) - be_hedged)).abs() < 1e-6,
+            "{name}"
+        );
+    }
 }
 
 #[test]
