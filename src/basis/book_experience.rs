@@ -105,7 +105,21 @@ pub fn load(config: &Config, path: &Path) -> Result<Experience> {
             ),
         ));
     }
-    Experience::load(path, ages, years, &sexes)
+    Experience::load(path, ages, years, &sexes).map_err(|e| match e {
+        // The grid's window is the file's own here, not the config's fitted window.
+        Error::File { file, rule } if rule.starts_with("missing cell") => {
+            let cell = rule.split("; ").next().unwrap_or(&rule).to_string();
+            Error::File {
+                file,
+                rule: format!(
+                    "{cell}; `data.book_experience` must hold every cell between its lowest and \
+                     highest age ({}-{}) and year ({}-{}) for each sex it holds",
+                    ages.first, ages.last, years.first, years.last
+                ),
+            }
+        }
+        other => other,
+    })
 }
 
 /// Every book cell with positive exposure beside the population's fitted rate from

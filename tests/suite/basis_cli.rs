@@ -163,3 +163,47 @@ fn the_parametric_swap_leaves_the_books_level_and_spread_risk() {
     // book's own level and spread are drawn, it removes a smaller share of the capital.
     assert!(reduction(true) < reduction(false));
 }
+
+#[test]
+fn a_missing_book_cell_is_named_with_the_files_own_window() {
+    let dir = tempfile::tempdir().unwrap();
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/demo");
+    let text = std::fs::read_to_string(root.join("book-experience.csv")).unwrap();
+    // Drop the row of one cell inside the file's window.
+    let kept: String = text
+        .lines()
+        .filter(|l| !l.starts_with("2019,64,F,"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    assert!(kept.len() < text.len());
+    let csv = dir.path().join("book-experience.csv");
+    std::fs::write(&csv, kept).unwrap();
+    let path = config(dir.path(), 10, "");
+    let text = std::fs::read_to_string(&path).unwrap();
+    let text: String = text
+        .lines()
+        .map(|l| {
+            if l.starts_with("book_experience") {
+                format!("book_experience = \"{}\"\n", csv.display())
+            } else {
+                format!("{l}\n")
+            }
+        })
+        .collect();
+    std::fs::write(&path, text).unwrap();
+    let out = Command::new(env!("CARGO_BIN_EXE_tailspan"))
+        .arg("check")
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("no row for sex F, age 64, year 2019"),
+        "{stderr}"
+    );
+    assert!(
+        stderr.contains("`data.book_experience` must hold every cell"),
+        "{stderr}"
+    );
+}
