@@ -143,19 +143,35 @@ impl MortalityModel for Apc {
     fn fit(&self, population: &Population) -> Result<Box<dyn FittedModel>> {
         Ok(Box::new(self.fit_population(population)?))
     }
+
+    fn check_population(&self, population: &Population) -> Result<()> {
+        self.grid(population).map(drop)
+    }
 }
 
 impl Apc {
-    /// Fits one population.
-    pub fn fit_population(&self, population: &Population) -> Result<ApcFit> {
+    /// The window's checks and its cohort grid: what the fit refuses before iterating.
+    fn grid(&self, population: &Population) -> Result<CohortGrid> {
         let p = &self.params;
         check_window(NAME, population, p.closure_fit_ages, p.max_age)?;
-        let (ages, years, sex) = (population.ages, population.years, population.sex);
-        let (na, nt) = (ages.len(), years.len());
         // Two constraints on γ leave C − 2 free values; the time series needs its own
         // minimum on top.
         let needed = p.cohort_series.minimum_length().max(3);
-        let grid = CohortGrid::new(NAME, ages, years, p.min_cohort_cells, needed)?;
+        CohortGrid::new(
+            NAME,
+            population.ages,
+            population.years,
+            p.min_cohort_cells,
+            needed,
+        )
+    }
+
+    /// Fits one population.
+    pub fn fit_population(&self, population: &Population) -> Result<ApcFit> {
+        let p = &self.params;
+        let grid = self.grid(population)?;
+        let (ages, years, sex) = (population.ages, population.years, population.sex);
+        let (na, nt) = (ages.len(), years.len());
         grid.require_deaths(NAME, population)?;
         let nc = grid.estimated;
         let mut cells = Vec::with_capacity(na * nt);

@@ -117,15 +117,19 @@ impl MortalityModel for CbdCohort {
     fn fit(&self, population: &Population) -> Result<Box<dyn FittedModel>> {
         Ok(Box::new(self.fit_population(population)?))
     }
+
+    fn check_population(&self, population: &Population) -> Result<()> {
+        self.grid(population).map(drop)
+    }
 }
 
 impl CbdCohort {
-    /// Fits one population.
-    pub fn fit_population(&self, population: &Population) -> Result<CbdCohortFit> {
+    /// The window's checks and its cohort grid: what the fit refuses before iterating.
+    fn grid(&self, population: &Population) -> Result<CohortGrid> {
         let p = &self.params;
         let name = p.variant.name();
         let (ages, years, sex) = (population.ages, population.years, population.sex);
-        let (na, nt, nk) = (ages.len(), years.len(), p.variant.indices());
+        let (na, nk) = (ages.len(), p.variant.indices());
         if na < nk {
             return Err(Error::model(
                 name,
@@ -134,7 +138,16 @@ impl CbdCohort {
         }
         check_window(name, population, p.closure_fit_ages, p.max_age)?;
         let needed = p.cohort_series.minimum_length().max(nk + 1);
-        let grid = CohortGrid::new(name, ages, years, p.min_cohort_cells, needed)?;
+        CohortGrid::new(name, ages, years, p.min_cohort_cells, needed)
+    }
+
+    /// Fits one population.
+    pub fn fit_population(&self, population: &Population) -> Result<CbdCohortFit> {
+        let p = &self.params;
+        let name = p.variant.name();
+        let grid = self.grid(population)?;
+        let (ages, years, sex) = (population.ages, population.years, population.sex);
+        let (na, nt, nk) = (ages.len(), years.len(), p.variant.indices());
         grid.require_deaths(name, population)?;
         let nc = grid.estimated;
         let xbar = (f64::from(ages.first) + f64::from(ages.last)) / 2.0;

@@ -130,6 +130,14 @@ pub trait MortalityModel: Send + Sync {
     /// Fits the model to one population.
     fn fit(&self, population: &Population) -> crate::Result<Box<dyn FittedModel>>;
 
+    /// Refuses what [`MortalityModel::fit`] would refuse about `population`'s window before
+    /// any iteration (too few ages, years or identifiable cohorts for the settings), with
+    /// the same message, so that `check` catches it. By default nothing.
+    fn check_population(&self, population: &Population) -> crate::Result<()> {
+        let _ = population;
+        Ok(())
+    }
+
     /// Fits `population`, which extends `base`'s data by later years (the one-year
     /// re-calibration), starting where `base` ended when the model can: the result equals
     /// [`MortalityModel::fit`]'s within the fit's tolerance. By default a cold fit.

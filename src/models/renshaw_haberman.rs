@@ -106,6 +106,10 @@ impl MortalityModel for RenshawHaberman {
     fn fit(&self, population: &Population) -> Result<Box<dyn FittedModel>> {
         Ok(Box::new(self.fit_population(population)?))
     }
+
+    fn check_population(&self, population: &Population) -> Result<()> {
+        self.grid(population).map(drop)
+    }
 }
 
 /// The working state of the cycled Newton fit, column-major cells (ages within a year).
@@ -227,14 +231,26 @@ impl State<'_> {
 }
 
 impl RenshawHaberman {
+    /// The window's checks and its cohort grid: what the fit refuses before iterating.
+    fn grid(&self, population: &Population) -> Result<CohortGrid> {
+        let p = &self.params;
+        check_window(NAME, population, p.closure_fit_ages, p.max_age)?;
+        let needed = p.cohort_series.minimum_length().max(3);
+        CohortGrid::new(
+            NAME,
+            population.ages,
+            population.years,
+            p.min_cohort_cells,
+            needed,
+        )
+    }
+
     /// Fits one population.
     pub fn fit_population(&self, population: &Population) -> Result<RenshawHabermanFit> {
         let p = &self.params;
-        check_window(NAME, population, p.closure_fit_ages, p.max_age)?;
+        let grid = self.grid(population)?;
         let (ages, years, sex) = (population.ages, population.years, population.sex);
         let (na, nt) = (ages.len(), years.len());
-        let needed = p.cohort_series.minimum_length().max(3);
-        let grid = CohortGrid::new(NAME, ages, years, p.min_cohort_cells, needed)?;
         grid.require_deaths(NAME, population)?;
         let nc = grid.estimated;
         let start = LeeCarterParams {

@@ -25,6 +25,7 @@ pub struct CheckedInputs {
 pub fn checked_inputs(config: &Config) -> Result<CheckedInputs> {
     check_models(config)?;
     let experience = Experience::from_config(config)?;
+    check_windows(config, &experience)?;
     let book = Book::from_config(config)?;
     let curve =
         if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
@@ -37,6 +38,18 @@ pub fn checked_inputs(config: &Config) -> Result<CheckedInputs> {
         book,
         curve,
     })
+}
+
+/// Runs every configured kind's pre-fit checks of each sex's window (enough ages, years and
+/// identifiable cohorts), in the order the fits meet them.
+pub fn check_windows(config: &Config, experience: &Experience) -> Result<()> {
+    for kind in config.model.kinds() {
+        let model = build_model(&config.model, kind)?;
+        for population in &experience.populations {
+            model.check_population(population)?;
+        }
+    }
+    Ok(())
 }
 
 /// Builds (and so checks) the settings of every configured model kind, as the fits do.

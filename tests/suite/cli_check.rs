@@ -484,6 +484,17 @@ const CONFIG: &[Case] = &[
         ],
     ),
     (
+        // A cohort model's window is checked before any data are fitted, by the fit's
+        // own rule (`MortalityModel::check_population`).
+        "cohorts_too_few.toml",
+        &[
+            "model `apc`",
+            "cohort effect is not identified",
+            "model.min_cohort_cells",
+            "needs at least 5",
+        ],
+    ),
+    (
         "misspelt_model_kind.toml",
         &[
             "misspelt_model_kind.toml",
