@@ -15,9 +15,10 @@
 //! [`series`] (random walks, the cohort index's ARIMA and AR(1) forms) serves both the fits
 //! that rank and describe a model and the projection that draws from it; [`interest`]
 //! (discount curves, discount functions, payment timing) serves the life-table maths and
-//! the valuation; [`basis`] makes the book's own rates from the population's, between the
-//! projection that draws the population and the valuation that reads the book; [`projection`] owns the rate surface that the valuation, hedges and
-//! one-year refits read; [`report`] reads finished results, and [`io`] only writes.
+//! the valuation; [`projection`] owns the rate surface that the valuation, hedges and
+//! one-year refits read, and [`basis`] turns it into the book's own rates, between the
+//! projection that draws the population and the valuation that reads the book; [`report`]
+//! reads finished results, and [`io`] only writes.
 //! Three edges still point upwards and are known: `risk::merge` drives the pipeline's
 //! stages (it is the `merge` command's work), `valuation::files` fills `risk::order`'s PV
 //! sample, and the config in [`data`] holds the hedges' terms (`hedge::spec`).
