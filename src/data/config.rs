@@ -356,8 +356,8 @@ pub struct ValuationConfig {
     #[serde(default)]
     pub mortality_factors: Vec<MortalityFactor>,
     /// Valuation date `YYYY-MM-DD` within the valuation year: the date the book's
-    /// `birth_date` and `start_date` are read at.
-    #[serde(default)]
+    /// `birth_date` and `start_date` are read at. Quoted or a bare TOML date.
+    #[serde(default, deserialize_with = "date_text")]
     pub date: Option<String>,
     /// How ages are read from dates of birth: `last-birthday` (default) or `nearest`.
     #[serde(default)]
@@ -466,6 +466,25 @@ fn default_seed() -> u64 {
 fn default_horizon() -> usize {
     80
 }
+/// A date key as text: TOML writes dates bare (`date = 2025-06-30`) as readily as quoted,
+/// and both mean the same day; the text is checked where it is read.
+fn date_text<'de, D: serde::Deserializer<'de>>(
+    deserializer: D,
+) -> std::result::Result<Option<String>, D::Error> {
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Given {
+        Text(String),
+        Date(toml::value::Datetime),
+    }
+    Ok(
+        Option::<Given>::deserialize(deserializer)?.map(|given| match given {
+            Given::Text(text) => text,
+            Given::Date(date) => date.to_string(),
+        }),
+    )
+}
+
 fn default_true() -> bool {
     true
 }
@@ -1061,6 +1080,20 @@ years = [1975, 2024]
         assert_eq!(c.model.closure_fit_ages, 6);
         let c = Config::parse(MINIMAL, Path::new("c.toml")).unwrap();
         assert_eq!(c.model.closure_fit_ages, 10);
+    }
+
+    #[test]
+    fn valuation_date_is_read_quoted_or_bare() {
+        for given in ["\"2025-06-30\"", "2025-06-30"] {
+            let text = format!("{MINIMAL}\n[valuation]\nyear = 2025\ndate = {given}\n");
+            let c = Config::parse(&text, Path::new("c.toml")).unwrap();
+            assert_eq!(c.valuation.date.as_deref(), Some("2025-06-30"), "{given}");
+        }
+        let text = format!("{MINIMAL}\n[valuation]\nyear = 2025\ndate = 20250630\n");
+        let err = Config::parse(&text, Path::new("c.toml"))
+            .unwrap_err()
+            .to_string();
+        assert!(err.contains("valuation.date"), "{err}");
     }
 
     #[test]
