@@ -4,7 +4,9 @@
 //!
 //! It runs after the capital figures, on the `book.parquet` just written, and replays only
 //! the scenarios the allocation averages over; a tranche costs two more valuations of every
-//! scenario (the tranche alone, and the book with it), whose PVs are kept in memory.
+//! scenario (the tranche alone, and the book with it). Their PVs go to hidden temporary
+//! files of `book.parquet`'s layout beside the outputs, read back as the book's are and
+//! removed when done, so that memory stays bounded by the policies, not the scenarios.
 
 use std::sync::Arc;
 
@@ -19,11 +21,12 @@ use crate::io::{AtomicFile, Provenance};
 use crate::pipeline::{ValuationOutcome, ValuationSetup};
 use crate::projection::{Projector, scenario_ids};
 use crate::risk::CapitalSummary;
-use crate::risk::allocation::{Allocation, Column, KeptPvs, allocate};
+use crate::risk::allocation::{Allocation, Column, allocate};
 use crate::risk::allocation_summary::AllocationSummary;
 use crate::risk::order::{HELD, Streamed};
 use crate::risk::summary::RunSummary;
 use crate::risk::tranche::{Capitals, TrancheFigures, runoff_annuity, tranche_levels};
+use crate::valuation::files::{WrittenBook, book_sink, write_book};
 use crate::valuation::replay::PolicyReplay;
 use crate::valuation::{DriverSettings, Extracts, ScenarioValue, value_scenarios};
 
@@ -72,6 +75,7 @@ pub fn allocation_stage(
             setup,
             projector,
             summary,
+            provenance,
             candidate.clone(),
         )?);
     }
@@ -136,25 +140,29 @@ pub fn combined_book(book: &Book, candidate: &Book) -> Result<Book> {
     })
 }
 
-/// A book valued in every scenario of the run: its central value and its PVs.
+/// A book valued in every scenario of the run: its central value and its PVs, in a file
+/// of `book.parquet`'s layout.
 struct Valued {
     central: ScenarioValue,
-    pvs: KeptPvs,
+    pvs: WrittenBook,
+    /// The PVs' file, under its hidden temporary name: never committed, so removed when
+    /// dropped (and, if the process is killed, by the next run that writes `stem`).
+    _file: AtomicFile,
 }
 
+/// Values `setup`'s book in every scenario of the run, writing its PVs to a temporary
+/// file for the target `STEM.parquet` in the output folder.
 fn value_everywhere(
     config: &Config,
+    provenance: &Provenance,
     setup: &ValuationSetup,
     projector: &Projector,
+    stem: &str,
 ) -> Result<Valued> {
     let ids = scenario_ids(config.projection.scenarios, config.projection.noise);
-    let n = (ids.end - ids.start) as usize;
     let mut central = None;
-    let mut pvs = KeptPvs {
-        scenarios: Vec::with_capacity(n),
-        expected: Vec::with_capacity(n),
-        simulated: Vec::new(),
-    };
+    let path = config.output_folder().join(format!("{stem}.parquet"));
+    let mut sink = book_sink(&path, config.output.compression, provenance)?;
     let settings = settings(config, setup);
     value_scenarios(
         projector,
@@ -164,24 +172,22 @@ fn value_everywhere(
         settings,
         &Extracts::default(),
         |chunk| {
-            for r in chunk {
-                if r.scenario == 0 {
-                    central = Some(r.value.clone());
-                    continue;
-                }
-                pvs.scenarios.push(r.scenario);
-                pvs.expected.push(r.value.pv_expected);
-                if settings.idiosyncratic {
-                    pvs.simulated.push(r.value.pv_simulated);
-                }
+            if let Some(r) = chunk.iter().find(|r| r.scenario == 0) {
+                central = Some(r.value.clone());
             }
-            Ok(())
+            write_book(&mut sink, chunk)
         },
     )?;
     let central = central.ok_or_else(|| {
         Error::model("allocation", "the central path (scenario 0) was not valued")
     })?;
-    Ok(Valued { central, pvs })
+    let mut file = sink.close()?;
+    let pvs = WrittenBook::reopen(&mut file)?;
+    Ok(Valued {
+        central,
+        pvs,
+        _file: file,
+    })
 }
 
 /// Capital summaries (trend; with deaths simulated) of a book valued everywhere.
@@ -221,13 +227,20 @@ fn tranche(
     setup: &ValuationSetup,
     projector: &Projector,
     summary: &RunSummary,
+    provenance: &Provenance,
     candidate: Book,
 ) -> Result<TrancheFigures> {
     let combined = combined_book(&setup.book, &candidate)?;
     let alone = ValuationSetup::new(config, candidate, projector)?;
     let together = ValuationSetup::new(config, combined, projector)?;
-    let valued_alone = value_everywhere(config, &alone, projector)?;
-    let valued_together = value_everywhere(config, &together, projector)?;
+    let valued_alone = value_everywhere(config, provenance, &alone, projector, "tranche-alone")?;
+    let valued_together = value_everywhere(
+        config,
+        provenance,
+        &together,
+        projector,
+        "tranche-with-book",
+    )?;
     let (alone_trend, alone_sim) = capitals(config, &valued_alone)?;
     let (together_trend, together_sim) = capitals(config, &valued_together)?;
     let replay = PolicyReplay::new(

@@ -6,11 +6,21 @@ use super::html::{row, table_head};
 use crate::risk::allocation_summary::{AllocationSummary, MeasureAllocation};
 use crate::risk::tranche::TrancheLevel;
 
+/// `n` and `noun`, plural unless `n` is one: "1 tail scenario", "12 tail scenarios".
+fn scenarios(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("1 {noun}")
+    } else {
+        format!("{n} {noun}s")
+    }
+}
+
 fn segment_table(m: &MeasureAllocation, title: &str, level: &str, currency: &str) -> String {
     let mut out = table_head(
         Some(&format!(
-            "{title}: TVaR {level} capital by segment ({} tail scenarios; VaR over {} scenarios around it). Amounts in {currency}.",
-            m.tail_scenarios, m.window_scenarios
+            "{title}: TVaR {level} capital by segment ({}; VaR over {} around it). Amounts in {currency}.",
+            scenarios(m.tail_scenarios, "tail scenario"),
+            scenarios(m.window_scenarios, "scenario")
         )),
         &[
             "Segment",
@@ -117,4 +127,16 @@ pub fn allocation_section(
         body.push_str(&table);
     }
     Some(("Capital allocation", body))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::scenarios;
+
+    #[test]
+    fn counts_agree_with_their_noun() {
+        assert_eq!(scenarios(1, "tail scenario"), "1 tail scenario");
+        assert_eq!(scenarios(0, "tail scenario"), "0 tail scenarios");
+        assert_eq!(scenarios(51, "scenario"), "51 scenarios");
+    }
 }

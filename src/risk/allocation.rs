@@ -29,8 +29,8 @@ pub fn var_window(scenarios: usize) -> usize {
     ((scenarios as f64 * VAR_WINDOW_PER_SCENARIO).ceil() as usize).max(1)
 }
 
-/// Per-scenario PVs that can be read again in scenario order: `book.parquet` as written, or
-/// a book's values kept in memory.
+/// Per-scenario PVs that can be read again in scenario order: a file of `book.parquet`'s
+/// layout as written (the run's book, or a tranche's temporary one).
 pub trait PvSource {
     /// Calls `each` with every stochastic scenario's number and PV, in scenario order:
     /// trend only (`pv_expected`), or with deaths simulated (`pv_simulated`).
@@ -45,31 +45,6 @@ impl PvSource for WrittenBook {
             "pv_expected"
         };
         self.column(column).pass_scenarios(each)
-    }
-}
-
-/// Every stochastic scenario's PVs of a book, kept in memory (16 bytes a scenario).
-#[derive(Debug, Clone, Default, PartialEq)]
-pub struct KeptPvs {
-    /// Scenario numbers, ascending.
-    pub scenarios: Vec<u64>,
-    /// Trend-only PVs.
-    pub expected: Vec<f64>,
-    /// PVs with deaths simulated (empty when not simulated).
-    pub simulated: Vec<f64>,
-}
-
-impl PvSource for KeptPvs {
-    fn pass(&self, simulated: bool, each: &mut dyn FnMut(u64, f64)) -> Result<()> {
-        let values = if simulated {
-            &self.simulated
-        } else {
-            &self.expected
-        };
-        for (&s, &x) in self.scenarios.iter().zip(values) {
-            each(s, x);
-        }
-        Ok(())
     }
 }
 

@@ -18,8 +18,8 @@ use parquet::arrow::arrow_reader::ParquetRecordBatchReaderBuilder;
 
 use crate::data::config::Compression;
 use crate::error::{Error, Result};
-use crate::io::AtomicFile;
 use crate::io::parquet::{ParquetSink, STREAMED_ROWS_PER_GROUP};
+use crate::io::{AtomicFile, Provenance};
 use crate::projection::OutputOptions;
 use crate::risk::order::Sample;
 use crate::valuation::driver::ScenarioResult;
@@ -144,16 +144,7 @@ impl ValuationFiles {
 
     /// Appends one chunk of results (in scenario order).
     pub fn write(&mut self, results: &[ScenarioResult]) -> Result<()> {
-        let ids: Vec<u32> = results.iter().map(|r| r.scenario as u32).collect();
-        self.book.write_columns(vec![
-            Arc::new(UInt32Array::from(ids)),
-            Arc::new(Float64Array::from_iter_values(
-                results.iter().map(|r| r.value.pv_expected),
-            )),
-            Arc::new(Float64Array::from_iter(
-                results.iter().map(|r| simulated(r.value.pv_simulated)),
-            )),
-        ])?;
+        write_book(&mut self.book, results)?;
 
         let (mut scenario, mut year, mut expected, mut sim) = (vec![], vec![], vec![], vec![]);
         for r in results {
@@ -208,6 +199,37 @@ impl ValuationFiles {
         }
         Ok(files)
     }
+}
+
+/// Opens a file of `book.parquet`'s layout at `path` on its own, without the other
+/// valuation files: for a book's PVs that are only read back, never committed.
+pub fn book_sink(
+    path: &Path,
+    compression: Compression,
+    provenance: &Provenance,
+) -> Result<ParquetSink> {
+    ParquetSink::create(
+        path,
+        book_schema(),
+        compression,
+        BOOK_DESCRIPTION,
+        provenance,
+        BOOK_ROWS_PER_GROUP,
+    )
+}
+
+/// Appends one chunk of results (in scenario order) to a sink of `book.parquet`'s layout.
+pub fn write_book(book: &mut ParquetSink, results: &[ScenarioResult]) -> Result<()> {
+    let ids: Vec<u32> = results.iter().map(|r| r.scenario as u32).collect();
+    book.write_columns(vec![
+        Arc::new(UInt32Array::from(ids)),
+        Arc::new(Float64Array::from_iter_values(
+            results.iter().map(|r| r.value.pv_expected),
+        )),
+        Arc::new(Float64Array::from_iter(
+            results.iter().map(|r| simulated(r.value.pv_simulated)),
+        )),
+    ])
 }
 
 /// A written `book.parquet`, open for reading before it is committed.

@@ -535,3 +535,28 @@ fn a_tranche_needs_the_allocation_and_new_ids() {
     );
     assert!(!d.join("out/book.parquet").exists());
 }
+
+#[test]
+fn a_tranche_leaves_no_file_behind() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    book_slice(&d.join("book.csv"), 0, 50, "");
+    book_slice(&d.join("tranche.csv"), 1000, 1020, "T");
+    // What a run killed while valuing the tranche would have left (no process holds it).
+    std::fs::create_dir_all(d.join("out")).unwrap();
+    std::fs::write(d.join("out/.tranche-alone.parquet.a1B2c3.partial"), b"torn").unwrap();
+    let cfg = config(
+        d,
+        "book.csv",
+        "candidate_book = \"tranche.csv\"",
+        "allocation = true",
+    );
+    let summary = value(&cfg, None);
+    assert_eq!(summary["allocation"]["tranche"]["policies"], 20);
+    let left: Vec<String> = std::fs::read_dir(d.join("out"))
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .filter(|n| n.contains("tranche"))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+}
