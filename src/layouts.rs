@@ -13,7 +13,7 @@ use std::path::Path;
 use chrono::{Days, Months, NaiveDate};
 
 use crate::data::published::PUBLISHED_COLUMNS;
-use crate::data::{Book, Experience, Sex};
+use crate::data::{Book, Experience, Policy, Sex};
 use crate::error::{Error, Result};
 use crate::io::AtomicFile;
 
@@ -266,30 +266,8 @@ fn xlsx_bytes(path: &Path, name: &str, header: &[&str], rows: &[Vec<String>]) ->
 }
 
 fn book_sheet(path: &Path, book: &Book) -> Result<AtomicFile> {
-    let header: Vec<&str> = crate::data::book::BOOK_REQUIRED
-        .iter()
-        .chain(&crate::data::book::BOOK_OPTIONAL)
-        .copied()
-        .collect();
-    let rows: Vec<Vec<String>> = book
-        .policies
-        .iter()
-        .map(|p| {
-            vec![
-                p.id.clone(),
-                p.sex.code().to_string(),
-                p.age.to_string(),
-                p.amount.to_string(),
-                p.deferral.to_string(),
-                p.term.map(|t| t.to_string()).unwrap_or_default(),
-                p.guarantee.to_string(),
-                p.escalation.to_string(),
-                p.weight.to_string(),
-                p.mortality_factor.to_string(),
-            ]
-        })
-        .collect();
-    sheet(path, "Policies", &header, &rows)
+    let rows: Vec<Vec<String>> = book.policies.iter().map(Policy::fields).collect();
+    sheet(path, "Policies", &Policy::columns(), &rows)
 }
 
 fn experience_sheet(path: &Path, experience: &Experience) -> Result<AtomicFile> {

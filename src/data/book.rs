@@ -101,6 +101,31 @@ pub struct Book {
 }
 
 impl Policy {
+    /// The book file's columns, required then optional: the order of [`Policy::fields`].
+    pub fn columns() -> Vec<&'static str> {
+        BOOK_REQUIRED
+            .iter()
+            .chain(&BOOK_OPTIONAL)
+            .copied()
+            .collect()
+    }
+
+    /// The policy's cells in the book file's column order (required, then optional).
+    pub fn fields(&self) -> Vec<String> {
+        vec![
+            self.id.clone(),
+            self.sex.code().to_string(),
+            self.age.to_string(),
+            self.amount.to_string(),
+            self.deferral.to_string(),
+            self.term.map(|t| t.to_string()).unwrap_or_default(),
+            self.guarantee.to_string(),
+            self.escalation.to_string(),
+            self.weight.to_string(),
+            self.mortality_factor.to_string(),
+        ]
+    }
+
     /// An immediate whole-life annuity of `amount` a year with no guarantee or escalation.
     pub fn whole_life(id: impl Into<String>, sex: Sex, age: i32, amount: f64) -> Policy {
         Policy {
@@ -254,25 +279,8 @@ impl Book {
 
     /// As [`Book::write_csv`] but left under a temporary name until committed.
     pub fn write_unpublished(&self, path: &Path) -> Result<crate::io::AtomicFile> {
-        let header: Vec<&str> = BOOK_REQUIRED
-            .iter()
-            .chain(&BOOK_OPTIONAL)
-            .copied()
-            .collect();
-        let rows = self.policies.iter().map(|p| {
-            vec![
-                p.id.clone(),
-                p.sex.code().to_string(),
-                p.age.to_string(),
-                p.amount.to_string(),
-                p.deferral.to_string(),
-                p.term.map(|t| t.to_string()).unwrap_or_default(),
-                p.guarantee.to_string(),
-                p.escalation.to_string(),
-                p.weight.to_string(),
-                p.mortality_factor.to_string(),
-            ]
-        });
+        let header = Policy::columns();
+        let rows = self.policies.iter().map(Policy::fields);
         csv_input::write_unpublished(path, &header, rows)
     }
 
