@@ -16,7 +16,7 @@ use crate::life::closure::KannistoClosure;
 use crate::models::check_fit_settings;
 use crate::models::glm::Family;
 use crate::models::likelihood::measure_fit;
-use crate::models::{FitBasis, FittedModel, MortalityModel};
+use crate::models::{FitBasis, FitDiagnostics, FittedModel, MortalityModel};
 
 const NAME: &str = "lee-carter";
 
@@ -105,6 +105,8 @@ impl MortalityModel for LeeCarter {
     /// The Poisson fit starts from `base`'s a_x, b_x and k_t, each new year's k_t solved
     /// given them, instead of from an SVD of the log rates; it stops by the same rule, so
     /// it lands on the same maximum within the tolerance. The SVD fit is closed form: cold.
+    /// The refit is not measured against its data (its diagnostics hold only the cycle
+    /// count): a re-calibration reads its rates, and the measure costs as much as a cycle.
     fn refit(
         &self,
         population: &Population,
@@ -115,7 +117,7 @@ impl MortalityModel for LeeCarter {
             (LeeCarterMethod::Poisson, Some(base)) => base.warm_start(population),
             _ => None,
         };
-        Ok(Box::new(self.fit_from(population, start)?))
+        Ok(Box::new(self.fit_from(population, start, false)?))
     }
 }
 
@@ -127,12 +129,17 @@ impl LeeCarter {
 
     /// Fits one population.
     pub fn fit_population(&self, population: &Population) -> Result<LeeCarterFit> {
-        self.fit_from(population, None)
+        self.fit_from(population, None, true)
     }
 
     /// Fits one population; the Poisson fit starts from `start` when given, else from the
-    /// SVD fit.
-    fn fit_from(&self, population: &Population, start: Option<Parameters>) -> Result<LeeCarterFit> {
+    /// SVD fit. Unless `measure`, the fit's log-likelihood and residuals are left unmeasured.
+    fn fit_from(
+        &self,
+        population: &Population,
+        start: Option<Parameters>,
+        measure: bool,
+    ) -> Result<LeeCarterFit> {
         let p = &self.params;
         let ages = population.ages;
         if ages.len() < 2 || population.years.len() < 2 {
@@ -198,7 +205,12 @@ impl LeeCarter {
                 },
             ),
         };
-        fit.measure(population, iterations)?;
+        if measure {
+            fit.measure(population, iterations)?;
+        } else {
+            let unmeasured = FitDiagnostics::new(0.0, 0.0, 0, 0, iterations);
+            fit.basis.record(unmeasured, DMatrix::zeros(0, 0));
+        }
         Ok(fit)
     }
 }

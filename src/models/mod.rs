@@ -139,8 +139,9 @@ pub trait MortalityModel: Send + Sync {
     }
 
     /// Fits `population`, which extends `base`'s data by later years (the one-year
-    /// re-calibration), starting where `base` ended when the model can: the result equals
-    /// [`MortalityModel::fit`]'s within the fit's tolerance. By default a cold fit.
+    /// re-calibration), starting where `base` ended when the model can: the result's rates
+    /// equal [`MortalityModel::fit`]'s within the fit's tolerance; its diagnostics may be
+    /// left unmeasured (a refit is read for its rates). By default a cold fit.
     fn refit(
         &self,
         population: &Population,

@@ -319,6 +319,19 @@ impl Projector {
     /// outside (0, 1] at `max_age`, where the closure sets it to 1), or a non-finite one, is
     /// an error naming the scenario, sex, year and age.
     pub fn generate(&self, scenario: u64, out: &mut ScenarioPaths) -> Result<()> {
+        self.generate_years(scenario, out, usize::MAX)
+    }
+
+    /// Like [`Projector::generate`], but the rates of only the first `years` projected
+    /// years (every index is still drawn, so those rows equal `generate`'s); later rows keep
+    /// whatever `out` held. For readers of the first years alone, such as the one-year
+    /// re-calibration.
+    pub fn generate_years(
+        &self,
+        scenario: u64,
+        out: &mut ScenarioPaths,
+        years: usize,
+    ) -> Result<()> {
         let s = &self.settings;
         let central_path = scenario == 0;
         if !s.noise && !central_path {
@@ -378,10 +391,10 @@ impl Projector {
         basis
             .cohorts()
             .draw(s.seed, scenario, how, &mut out.cohorts)?;
-        self.fill_rates(basis, out)
+        self.fill_rates(basis, out, years)
     }
 
-    fn fill_rates(&self, basis: &JointBasis, out: &mut ScenarioPaths) -> Result<()> {
+    fn fill_rates(&self, basis: &JointBasis, out: &mut ScenarioPaths, years: usize) -> Result<()> {
         let (n_years, n_ages) = (out.years.len(), out.ages.len());
         let dims = out.dims;
         for (i, &sex) in out.sexes.iter().enumerate() {
@@ -389,7 +402,7 @@ impl Projector {
             let range = basis.range(i);
             let block = &mut out.rates[i * n_years * n_ages..(i + 1) * n_years * n_ages];
             let cohort = out.cohorts[i].as_ref();
-            for (h, row) in block.chunks_exact_mut(n_ages).enumerate() {
+            for (h, row) in block.chunks_exact_mut(n_ages).take(years).enumerate() {
                 let k = &out.factors[h * dims + range.start..h * dims + range.end];
                 match cohort {
                     // Age x in year T + h takes γ of the cohort born in T + h − x.

@@ -49,12 +49,15 @@ pub fn one_year_values(
     recalibration: &Recalibration<'_>,
     scenarios: usize,
 ) -> Result<Vec<f64>> {
+    // The stochastic path is read only up to the valuation year: the simulated years'
+    // deaths and the realised first year of the valuation.
+    let years = (recalibration.year - projector.basis().years().last).max(0) as usize;
     (1..=scenarios as u64)
         .into_par_iter()
         .map_init(
             || projector.buffer(),
             |paths, scenario| {
-                projector.generate(scenario, paths)?;
+                projector.generate_years(scenario, paths, years)?;
                 one_scenario(projector, book, recalibration, paths, scenario)
             },
         )
