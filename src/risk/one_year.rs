@@ -24,8 +24,8 @@ use crate::data::Population;
 use crate::data::sex::sex_index;
 use crate::error::{Error, Result};
 use crate::models::{FittedModel, MortalityModel};
-use crate::projection::RateSurface;
 use crate::projection::{JointBasis, Projector, Purpose, Settings, Uncertainty, stream};
+use crate::projection::{RateSurface, ScenarioPaths};
 use crate::valuation::{PreparedBook, ScenarioValue, Workspace};
 
 /// What the re-calibration needs beyond the projector and the book.
@@ -55,22 +55,44 @@ pub fn one_year_values(
     (1..=scenarios as u64)
         .into_par_iter()
         .map_init(
-            || projector.buffer(),
-            |paths, scenario| {
-                projector.generate_years(scenario, paths, years)?;
-                one_scenario(projector, book, recalibration, paths, scenario)
+            || Buffers {
+                paths: projector.buffer(),
+                workspace: Workspace::default(),
+                value: ScenarioValue::default(),
+                book: BookBuffers::default(),
+                hybrid: Vec::new(),
+            },
+            |buffers, scenario| {
+                projector.generate_years(scenario, &mut buffers.paths, years)?;
+                one_scenario(projector, book, recalibration, buffers, scenario)
             },
         )
         .collect()
+}
+
+/// A thread's buffers, kept from one scenario to the next.
+struct Buffers {
+    paths: ScenarioPaths,
+    workspace: Workspace,
+    value: ScenarioValue,
+    book: BookBuffers,
+    hybrid: Vec<Vec<f64>>,
 }
 
 fn one_scenario(
     projector: &Projector,
     book: &PreparedBook,
     recalibration: &Recalibration<'_>,
-    paths: &crate::projection::ScenarioPaths,
+    buffers: &mut Buffers,
     scenario: u64,
 ) -> Result<f64> {
+    let Buffers {
+        paths,
+        workspace,
+        value,
+        book: book_buffers,
+        hybrid,
+    } = buffers;
     let basis = projector.basis();
     let settings = projector.settings();
     let last_fitted = basis.years().last;
@@ -112,18 +134,17 @@ fn one_scenario(
     central.generate(0, &mut refitted)?;
     // Rates from the valuation year: the realised year, then the refitted best estimate.
     let ages = paths.ages().len();
-    let mut hybrid: Vec<Vec<f64>> = Vec::with_capacity(basis.sexes().len());
-    for i in 0..basis.sexes().len() {
+    hybrid.resize_with(basis.sexes().len(), Vec::new);
+    for (i, rows) in hybrid.iter_mut().enumerate() {
         let realised = paths.year_rates(i, recalibration.year).ok_or_else(|| {
             Error::model(
                 "one-year",
                 "the projection does not reach the valuation year",
             )
         })?;
-        let mut rows = Vec::with_capacity(ages * (1 + settings.horizon));
+        rows.clear();
         rows.extend_from_slice(realised);
         rows.extend_from_slice(refitted.rates(i));
-        hybrid.push(rows);
     }
     let mut surfaces: [Option<RateSurface<'_>>; 2] = [None, None];
     for (i, &sex) in basis.sexes().iter().enumerate() {
@@ -134,15 +155,12 @@ fn one_scenario(
             q: &hybrid[i],
         });
     }
-    let mut ws = Workspace::default();
-    let mut value = ScenarioValue::default();
-    let mut book_buffers = BookBuffers::default();
     let surfaces = match recalibration.book_rates {
-        Some(rates) => rates.apply(0, &surfaces, &mut book_buffers),
+        Some(rates) => rates.apply(0, &surfaces, book_buffers),
         None => surfaces,
     };
-    book.build_curves(&surfaces, &mut ws)?;
-    book.value::<rand_chacha::ChaCha8Rng>(&mut ws, None, &mut value);
+    book.build_curves(&surfaces, workspace)?;
+    book.value::<rand_chacha::ChaCha8Rng>(workspace, None, value);
     Ok(value.pv_expected)
 }
 
@@ -150,7 +168,7 @@ fn one_scenario(
 /// E × m from the scenario's path, exposure that of the last observed year.
 fn extend(
     population: &Population,
-    paths: &crate::projection::ScenarioPaths,
+    paths: &ScenarioPaths,
     sex_slot: usize,
     new_years: i32,
     rng: &mut rand_chacha::ChaCha8Rng,
