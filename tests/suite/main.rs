@@ -19,6 +19,7 @@ mod hedge_trend;
 mod inputs_layouts;
 mod kill_cli;
 mod li_lee_cli;
+mod li_lee_rates;
 mod li_lee_recovery;
 mod li_lee_reference;
 mod life_cli;
