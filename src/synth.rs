@@ -95,6 +95,8 @@ enum Stream {
     Book = 4,
     BookSpread = 5,
     BookDeaths = 6,
+    SecondIndex = 7,
+    SecondDeaths = 8,
 }
 
 /// Stream numbers carry a tag in their high bits so they can never coincide with the
@@ -395,9 +397,91 @@ pub fn book_experience(seed: u64, population: &SyntheticPopulation) -> Result<Ex
     })
 }
 
-/// Writes `DIR/experience.csv`, `DIR/book.csv` and `DIR/book-experience.csv` for `seed`. Both files are fully
-/// written under temporary names before either is renamed into place, and a folder this
-/// call created is removed again on failure.
+/// Calendar years of the invented second population (it starts later than the first).
+pub const SECOND_YEARS: Span = Span {
+    first: 1985,
+    last: 2024,
+};
+
+/// The invented second population's log-rate gap to the first at [`BOOK_MEAN_AGE`].
+pub const SECOND_LEVEL: f64 = -0.10;
+
+/// Change of that gap per year of age (it narrows with age).
+pub const SECOND_SLOPE: f64 = 0.004;
+
+/// Constant, coefficient and innovation standard deviation of the second population's own
+/// index ξ_t, an AR(1) with constant (stationary mean c / (1 − φ) = −1).
+pub const SECOND_INDEX_AR1: (f64, f64, f64) = (-0.2, 0.8, 2.0);
+
+/// Lives at 50 of the second population per life of the first.
+pub const SECOND_SIZE: f64 = 0.2;
+
+/// The second population's own age loading g_x (Σ g_x = 1 over the population's ages):
+/// smallest at the youngest ages, rising linearly to three times that at the oldest.
+pub fn second_loading(age: i32) -> f64 {
+    let weight = |a: i32| 1.0 + 2.0 * (a - AGES.first) as f64 / (AGES.last - AGES.first) as f64;
+    weight(age) / AGES.iter().map(weight).sum::<f64>()
+}
+
+/// An invented second large population on Li & Lee (2005)'s structure against the first:
+/// log m₂(x, t) = log m₁(x, t) + level + slope (x − x̄) + g_x ξ_t, where m₁ are the first
+/// population's generating rates (its common trend and its own deviations), and ξ_t is an
+/// AR(1) with constant ([`SECOND_INDEX_AR1`]) started at its stationary distribution, so
+/// the gap between the two is that of the model, (a₂ − a₁) + b₂ k₂ − b₁ k₁. Ages as the
+/// first population, years [`SECOND_YEARS`], [`SECOND_SIZE`] times its lives (a few
+/// hundred thousand person-years a sex each year); deaths Poisson.
+pub fn second_population(seed: u64, population: &SyntheticPopulation) -> Result<Experience> {
+    let (c, phi, sigma) = SECOND_INDEX_AR1;
+    let mut index_rng = rng(seed, Stream::SecondIndex);
+    let stationary_sd = sigma / (1.0 - phi * phi).sqrt();
+    let z: f64 = StandardNormal.sample(&mut index_rng);
+    let mut xi = c / (1.0 - phi) + stationary_sd * z;
+    let mut index = Vec::with_capacity(SECOND_YEARS.len());
+    for _ in SECOND_YEARS.iter() {
+        index.push(xi);
+        let z: f64 = StandardNormal.sample(&mut index_rng);
+        xi = c + phi * xi + sigma * z;
+    }
+    let mut deaths_rng = rng(seed, Stream::SecondDeaths);
+    let mut populations = Vec::with_capacity(2);
+    for (s, sex) in Sex::ALL.into_iter().enumerate() {
+        let first = &population.experience.populations[s];
+        let mut exposure = DMatrix::zeros(AGES.len(), SECOND_YEARS.len());
+        let mut deaths = DMatrix::zeros(AGES.len(), SECOND_YEARS.len());
+        for (j, year) in SECOND_YEARS.iter().enumerate() {
+            let Some(pj) = YEARS.index(year) else {
+                return Err(Error::Numerical(format!(
+                    "the second population's year {year} lies outside the first's"
+                )));
+            };
+            for (i, age) in AGES.iter().enumerate() {
+                let gap = SECOND_LEVEL
+                    + SECOND_SLOPE * (age as f64 - BOOK_MEAN_AGE)
+                    + second_loading(age) * index[j];
+                let m = population.central_rates[s][(i, pj)] * gap.exp();
+                let e = (first.exposure[(i, pj)] * SECOND_SIZE * 10.0).round() / 10.0;
+                let poisson = Poisson::new(e * m).map_err(|err| {
+                    Error::Numerical(format!(
+                        "synthetic second-population deaths for sex {sex}, age {age}, year \
+                         {year}: {err}"
+                    ))
+                })?;
+                exposure[(i, j)] = e;
+                deaths[(i, j)] = poisson.sample(&mut deaths_rng);
+            }
+        }
+        populations.push(Population::new(sex, AGES, SECOND_YEARS, deaths, exposure)?);
+    }
+    Ok(Experience {
+        source: Default::default(),
+        populations,
+    })
+}
+
+/// Writes `DIR/experience.csv`, `DIR/book.csv`, `DIR/book-experience.csv` and
+/// `DIR/second-population.csv` for `seed`. Every file is fully written under a temporary
+/// name before any is renamed into place, and a folder this call created is removed again
+/// on failure.
 pub fn write(dir: &Path, seed: u64, policies: usize) -> Result<()> {
     if policies == 0 || policies > MAX_POLICIES {
         return Err(Error::argument(
@@ -408,6 +492,7 @@ pub fn write(dir: &Path, seed: u64, policies: usize) -> Result<()> {
     let population = population(seed)?;
     let book = book(seed, policies)?;
     let book_experience = book_experience(seed, &population)?;
+    let second = second_population(seed, &population)?;
     let existed = dir.exists();
     let result = (|| {
         let experience = population
@@ -416,9 +501,11 @@ pub fn write(dir: &Path, seed: u64, policies: usize) -> Result<()> {
         let book = book.write_unpublished(&dir.join("book.csv"))?;
         let book_experience =
             book_experience.write_unpublished(&dir.join("book-experience.csv"))?;
+        let second = second.write_unpublished(&dir.join("second-population.csv"))?;
         experience.commit()?;
         book.commit()?;
-        book_experience.commit()
+        book_experience.commit()?;
+        second.commit()
     })();
     if result.is_err() && !existed {
         // Only removes the folder if it is empty, i.e. nothing was published.

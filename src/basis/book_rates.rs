@@ -7,9 +7,18 @@
 //! draws (α0, α1) from their estimated normal distribution; under a stochastic spread it
 //! draws κ's path from the AR(1). Draws come from their own streams (`BasisLevel`,
 //! `BasisSpread`) keyed by (seed, scenario), so the population's draws are unchanged.
+//!
+//! Under Li–Lee ([`crate::basis::li_lee`]) the multiplier is instead the two populations'
+//! gap exp((a_{x,2} − a_{x,1}) + b_{x,2} k_{t,2} − b_{x,1} k_{t,1}) per sex, the common factor
+//! having cancelled; the own indices run on from the last fitted year on their expected
+//! AR(1) paths, or under a stochastic spread jointly, with correlated innovations from the
+//! same `BasisSpread` stream. There is no level draw under Li–Lee.
+
+use std::sync::Arc;
 
 use rand_distr::{Distribution, StandardNormal};
 
+use crate::basis::li_lee::LiLeeSex;
 use crate::basis::relative::RelativeFit;
 use crate::error::{Error, Result};
 use crate::projection::{Purpose, RateSurface, stream};
@@ -31,6 +40,9 @@ pub struct BookRates {
     seed: u64,
     /// Lower-triangular L with L Lᵀ the covariance of (α0, α1).
     cholesky: [[f64; 2]; 2],
+    /// Under Li–Lee, each population sex's fit, in the population's sex order (the
+    /// surfaces' slots); the relative `fit` is then reported but does not move the rates.
+    li_lee: Option<Arc<[LiLeeSex]>>,
 }
 
 /// One scenario's level, slope and spread path.
@@ -42,8 +54,11 @@ pub struct ScenarioBasis {
     pub slope: f64,
     /// First calendar year of `spread` (the year after the book's last).
     pub first_year: i32,
-    /// κ_t from `first_year` on.
+    /// κ_t from `first_year` on; under Li–Lee the book population's own index k_{t,2} of
+    /// the first sex.
     pub spread: Vec<f64>,
+    /// Under Li–Lee, per sex slot, the own indices (k_{t,1}, k_{t,2}) from `first_year` on.
+    pub own: Vec<[Vec<f64>; 2]>,
 }
 
 /// Per-thread buffers: the scenario's basis and the book's rates by sex slot.
@@ -72,7 +87,32 @@ impl BookRates {
             uncertainty,
             seed,
             cholesky: [[l00, 0.0], [l10, l11]],
+            li_lee: None,
         })
+    }
+
+    /// Book rates from Li–Lee fits, one per population sex in the surfaces' slot order;
+    /// `relative` is the relative fit reported beside them.
+    pub fn li_lee(
+        relative: RelativeFit,
+        fits: Vec<LiLeeSex>,
+        uncertainty: Uncertainty,
+        seed: u64,
+    ) -> Result<BookRates> {
+        if fits.is_empty() || fits.iter().any(|f| f.years != fits[0].years) {
+            return Err(Error::model(
+                "basis",
+                "the Li–Lee fits of the sexes must cover the same years",
+            ));
+        }
+        let mut rates = BookRates::new(relative, uncertainty, seed)?;
+        rates.li_lee = Some(fits.into());
+        Ok(rates)
+    }
+
+    /// The Li–Lee fits per sex slot, when the rates come from them.
+    pub fn li_lee_fits(&self) -> Option<&[LiLeeSex]> {
+        self.li_lee.as_deref()
     }
 
     /// The same rates with other sources of uncertainty drawn (same streams, so a scenario
@@ -104,6 +144,10 @@ impl BookRates {
         out: &mut ScenarioBasis,
         shocks: &mut Vec<f64>,
     ) {
+        if let Some(fits) = &self.li_lee {
+            self.draw_li_lee(fits, uncertainty, scenario, last_year, out);
+            return;
+        }
         let level = &self.fit.level;
         out.level = level.level;
         out.slope = level.slope;
@@ -129,6 +173,55 @@ impl BookRates {
         } else {
             self.fit.spread.central_into(&mut out.spread);
         }
+    }
+
+    /// Li–Lee's own indices of every sex from the year after the fit's last: expected
+    /// paths, or under a stochastic spread paths driven by correlated normal innovations.
+    fn draw_li_lee(
+        &self,
+        fits: &[LiLeeSex],
+        uncertainty: Uncertainty,
+        scenario: u64,
+        last_year: i32,
+        out: &mut ScenarioBasis,
+    ) {
+        let level = &self.fit.level;
+        out.level = level.level;
+        out.slope = level.slope;
+        let fitted_last = fits[0].years.last;
+        out.first_year = fitted_last + 1;
+        let n = (last_year - fitted_last).max(0) as usize;
+        out.own.resize_with(fits.len(), Default::default);
+        let mut rng = (scenario > 0 && uncertainty.spread)
+            .then(|| stream(self.seed, scenario, Purpose::BasisSpread));
+        for (fit, paths) in fits.iter().zip(&mut out.own) {
+            for path in paths.iter_mut() {
+                path.resize(n, 0.0);
+            }
+            let [first, second] = &fit.own;
+            match &mut rng {
+                Some(rng) => {
+                    let rho = fit.correlation;
+                    let rest = (1.0 - rho * rho).max(0.0).sqrt();
+                    let (mut k1, mut k2) = (first.last, second.last);
+                    let [path1, path2] = paths;
+                    for (v1, v2) in path1.iter_mut().zip(path2.iter_mut()) {
+                        let z1: f64 = StandardNormal.sample(rng);
+                        let z2: f64 = StandardNormal.sample(rng);
+                        k1 = first.step(k1, z1);
+                        k2 = second.step(k2, rho * z1 + rest * z2);
+                        *v1 = k1;
+                        *v2 = k2;
+                    }
+                }
+                None => {
+                    first.central_into(&mut paths[0]);
+                    second.central_into(&mut paths[1]);
+                }
+            }
+        }
+        out.spread.clear();
+        out.spread.extend_from_slice(&out.own[0][1]);
     }
 
     /// The book's rate surfaces in `scenario` from the population's `surfaces`, held in
@@ -161,7 +254,10 @@ impl BookRates {
         );
         for (slot, surface) in surfaces.iter().enumerate() {
             if let Some(s) = surface {
-                self.fill(basis, s, &mut q[slot]);
+                match &self.li_lee {
+                    Some(fits) => fill_li_lee(&fits[slot], basis, slot, s, &mut q[slot]),
+                    None => self.fill(basis, s, &mut q[slot]),
+                }
             }
         }
         let mut out = [None, None];
@@ -199,6 +295,32 @@ impl BookRates {
             for (&q, &age_term) in rates.iter().zip(&age_terms) {
                 out.push(book_q(q, (year_term + age_term).exp()));
             }
+        }
+    }
+}
+
+/// The book's q over one population surface under the Li–Lee fit of its sex, `slot`.
+fn fill_li_lee(
+    fit: &LiLeeSex,
+    basis: &ScenarioBasis,
+    slot: usize,
+    surface: &RateSurface<'_>,
+    out: &mut Vec<f64>,
+) {
+    out.clear();
+    out.reserve(surface.q.len());
+    let rows: Vec<usize> = (0..surface.ages)
+        .map(|i| fit.row(surface.first_age + i as i32))
+        .collect();
+    for (r, rates) in surface.q.chunks_exact(surface.ages).enumerate() {
+        let year = surface.first_year + r as i32;
+        let k = fit.fitted_indices(year).unwrap_or_else(|| {
+            let h = (year - basis.first_year) as usize;
+            let own = &basis.own[slot];
+            [own[0][h], own[1][h]]
+        });
+        for (&q, &row) in rates.iter().zip(&rows) {
+            out.push(book_q(q, fit.log_ratio(row, k).exp()));
         }
     }
 }

@@ -37,9 +37,6 @@ pub fn summary(path: &Path) -> Result<String> {
         curve,
     } = checked_inputs(&config)?;
     crate::pipeline::allocation::candidate_book(&config, book.as_ref())?;
-    if let (Some(_), Some(path)) = (&config.basis, &config.data.book_experience) {
-        crate::basis::book_experience::load(&config, &config.resolve(path))?;
-    }
 
     let mut s = String::new();
     // Writing to a String cannot fail.

@@ -755,10 +755,13 @@ impl Config {
                 "`[basis]` needs the book's own deaths and exposures: set `data.book_experience`",
             ));
         }
-        if basis.kind == BasisKind::LiLee {
+        if basis.kind == BasisKind::LiLee && basis.level_uncertainty {
             return Err(self.err(
-                "basis.kind",
-                "`li-lee` is not available in this version; use `relative`",
+                "basis.level_uncertainty",
+                "is not available with `kind = \"li-lee\"`: the book is then a second large \
+                 population whose level is estimated from its own rates, and this kind does not \
+                 model the level's mis-estimation; set it to false (or use `kind = \"relative\"` \
+                 for a small book)",
             ));
         }
         Ok(())

@@ -21,12 +21,16 @@ pub struct CheckedInputs {
 }
 
 /// Checks every model kind's settings, loads the experience, the book (against the
-/// projection the config will make) and the discount basis.
+/// projection the config will make), the book's own experience under `[basis]` and the
+/// discount basis.
 pub fn checked_inputs(config: &Config) -> Result<CheckedInputs> {
     check_models(config)?;
     let experience = Experience::from_config(config)?;
     check_windows(config, &experience)?;
     let book = Book::from_config(config)?;
+    if let (Some(_), Some(path)) = (&config.basis, &config.data.book_experience) {
+        crate::basis::load_book_experience(config, &config.resolve(path))?;
+    }
     let curve =
         if book.is_some() || config.valuation.rate.is_some() || config.valuation.curve.is_some() {
             Some(DiscountCurve::from_config(config)?)

@@ -51,6 +51,29 @@ pub struct BookBasisReport {
     pub fan: Vec<SpreadQuantiles>,
     /// The capital decomposition, when the run was stochastic.
     pub decomposition: Option<Decomposition>,
+    /// Under Li–Lee, each sex's two-population fit in brief (empty otherwise).
+    pub li_lee: Vec<LiLeeBrief>,
+}
+
+/// One sex's Li–Lee fit as the section states it.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct LiLeeBrief {
+    /// Sex of the lives.
+    pub sex: crate::data::Sex,
+    /// First and last fitted year.
+    pub years: [i32; 2],
+    /// Drift of the common index K_t.
+    pub drift: f64,
+    /// Its standard error.
+    pub drift_standard_error: f64,
+    /// φ of the index population's own index.
+    pub index_phi: f64,
+    /// φ of the book population's own index.
+    pub book_phi: f64,
+    /// σ of the book population's own index.
+    pub book_sigma: f64,
+    /// Correlation of the own indices' innovations.
+    pub correlation: f64,
 }
 
 /// The section's data from the fitted basis, the summary and the projection's last year.
@@ -92,5 +115,20 @@ pub fn gather(
         bands: d.actual_to_expected.by_age_band.clone(),
         fan,
         decomposition: summary.and_then(|s| s.decomposition.clone()),
+        li_lee: rates
+            .li_lee_fits()
+            .unwrap_or_default()
+            .iter()
+            .map(|f| LiLeeBrief {
+                sex: f.sex,
+                years: [f.years.first, f.years.last],
+                drift: f.common.drift,
+                drift_standard_error: f.common.drift_standard_error,
+                index_phi: f.own[0].phi,
+                book_phi: f.own[1].phi,
+                book_sigma: f.own[1].sigma,
+                correlation: f.correlation,
+            })
+            .collect(),
     }
 }

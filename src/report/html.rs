@@ -449,15 +449,49 @@ fn hedge_section(hedges: &[HedgeRow], currency: &str) -> Option<Section> {
     })
 }
 
+/// Under Li–Lee, the two-population fit in a sentence per sex (empty otherwise).
+fn li_lee_note(b: &crate::report::basis::BookBasisReport) -> String {
+    b.li_lee
+        .iter()
+        .map(|s| {
+            format!(
+                "<p class=\"note\">{}</p>\n",
+                escape(&format!(
+                    "Sex {}: the book is a second population fitted with the index population \
+                     by Li & Lee (2005) over {}–{}. The common index K_t drifts by {} a year \
+                     (s.e. {}; reported only: the valuation's common trend is the population \
+                     model's path); the populations' own indices are AR(1)s with φ = {} \
+                     (index) and φ = {}, σ = {} (book), innovations correlated {}.",
+                    s.sex,
+                    s.years[0],
+                    s.years[1],
+                    fixed(s.drift, 3),
+                    fixed(s.drift_standard_error, 3),
+                    fixed(s.index_phi, 3),
+                    fixed(s.book_phi, 3),
+                    fixed(s.book_sigma, 3),
+                    fixed(s.correlation, 2)
+                ))
+            )
+        })
+        .collect()
+}
+
 /// "Book against population": A/E by age band, the spread's fan, the decomposition.
 fn basis_section(data: &ReportData) -> Option<Section> {
     let b = data.book_basis.as_ref()?;
-    let mut body = format!(
+    let mut body = li_lee_note(b);
+    body += &format!(
         "<p class=\"note\">{}</p>\n",
         escape(&format!(
-            "The book's log death rate against the population's fitted rate: level α0 = {} \
+            "{}The book's log death rate against the population's fitted rate: level α0 = {} \
              (s.e. {}) at the mean fitted age, slope α1 = {} (s.e. {}) a year of age; the \
              yearly spread is an AR(1) with φ = {} and σ = {}.",
+            if b.li_lee.is_empty() {
+                ""
+            } else {
+                "For comparison with the relative kind: "
+            },
             fixed(b.level, 4),
             fixed(b.standard_errors[0], 4),
             fixed(b.slope, 5),
@@ -489,7 +523,12 @@ fn basis_section(data: &ReportData) -> Option<Section> {
     body.push_str("</tbody>\n</table>\n");
     if !b.fan.is_empty() {
         body.push_str(&table_head(
-            Some("The spread κ_t projected: quantiles over the scenarios."),
+            Some(if b.li_lee.is_empty() {
+                "The spread κ_t projected: quantiles over the scenarios."
+            } else {
+                "The book population's own index k_t (first sex) projected: quantiles over the \
+                 scenarios."
+            }),
             &["Year", "#5 %", "#Median", "#95 %"],
         ));
         for q in &b.fan {
@@ -528,7 +567,11 @@ fn basis_section(data: &ReportData) -> Option<Section> {
             _ => "Other",
         };
         for m in d.cumulative.iter().chain(&d.standalone) {
-            let values: Vec<String> = m.capital.iter().map(|c| amount(*c)).collect();
+            let values: Vec<String> = if m.measure == "level" && !d.level_modelled {
+                vec!["not drawn".to_string(); m.capital.len()]
+            } else {
+                m.capital.iter().map(|c| amount(*c)).collect()
+            };
             body.push_str(&row(name(m.measure), &values, None));
         }
         let values: Vec<String> = d.diversification.iter().map(|c| amount(*c)).collect();

@@ -56,6 +56,10 @@ pub struct Decomposition {
     pub standalone: Vec<MeasureCapital>,
     /// Σ standalone capitals (trend among them) − capital of all together, per level.
     pub diversification: Vec<f64>,
+    /// Whether the basis draws a level at all: false under Li–Lee, whose level is estimated
+    /// from a large population and not drawn, so `trend_level` equals `trend` and `level`
+    /// is zero by construction.
+    pub level_modelled: bool,
 }
 
 /// Values the book under every measure in scenarios `ids` (stochastic, > 0) and returns
@@ -149,5 +153,6 @@ pub fn decompose(
         cumulative: (0..4).map(record).collect(),
         standalone: (4..7).map(record).collect(),
         diversification,
+        level_modelled: rates.li_lee_fits().is_none(),
     })
 }

@@ -99,21 +99,6 @@ fn basis_run_writes_the_fit_and_the_decomposition() {
 }
 
 #[test]
-fn li_lee_is_refused_with_a_config_error() {
-    let dir = tempfile::tempdir().unwrap();
-    let path = config(dir.path(), 10, "");
-    let text = std::fs::read_to_string(&path)
-        .unwrap()
-        .replace("kind = \"relative\"", "kind = \"li-lee\"");
-    std::fs::write(&path, text).unwrap();
-    let out = run(&path);
-    assert_eq!(out.status.code(), Some(2));
-    let stderr = String::from_utf8_lossy(&out.stderr);
-    assert!(stderr.contains("basis.kind"), "{stderr}");
-    assert!(!dir.path().join("out").exists());
-}
-
-#[test]
 fn basis_without_book_experience_is_a_config_error() {
     let dir = tempfile::tempdir().unwrap();
     let path = config(dir.path(), 10, "");

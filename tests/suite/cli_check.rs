@@ -767,6 +767,7 @@ fn synth_is_deterministic_in_the_seed() {
             read("experience.csv"),
             read("book.csv"),
             read("book-experience.csv"),
+            read("second-population.csv"),
         )
     };
     let a = write("a", "7");
@@ -776,8 +777,9 @@ fn synth_is_deterministic_in_the_seed() {
     assert_ne!(a.0, c.0);
     assert_ne!(a.1, c.1);
     assert_ne!(a.2, c.2);
-    // Only the three files, no temporary leftovers.
-    assert_eq!(std::fs::read_dir(dir.path().join("a")).unwrap().count(), 3);
+    assert_ne!(a.3, c.3);
+    // Only the four files, no temporary leftovers.
+    assert_eq!(std::fs::read_dir(dir.path().join("a")).unwrap().count(), 4);
 }
 
 #[test]

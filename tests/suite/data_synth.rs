@@ -248,7 +248,12 @@ fn shipped_demo_files_are_the_default_synth_output() {
     let dir = tempfile::tempdir().unwrap();
     synth::write(dir.path(), synth::DEFAULT_SEED, synth::DEFAULT_POLICIES).unwrap();
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/demo");
-    for file in ["experience.csv", "book.csv"] {
+    for file in [
+        "experience.csv",
+        "book.csv",
+        "book-experience.csv",
+        "second-population.csv",
+    ] {
         let fresh = std::fs::read(dir.path().join(file)).unwrap();
         let shipped = std::fs::read(demo.join(file)).unwrap();
         assert!(

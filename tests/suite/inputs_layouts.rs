@@ -175,7 +175,7 @@ fn synth_formats_fit_and_value_as_the_csv_demo() {
         .map(|e| e.unwrap().file_name())
         .collect();
     names.sort();
-    assert_eq!(names.len(), 10, "{names:?}");
+    assert_eq!(names.len(), 11, "{names:?}");
     for name in &names {
         assert_eq!(
             std::fs::read(demo.join(name)).unwrap(),
