@@ -5,9 +5,11 @@
 
 use serde::Serialize;
 
-use crate::basis::FittedBasis;
 use crate::basis::actual_expected::{BandComparison, Comparison};
 use crate::basis::book_rates::ScenarioBasis;
+use crate::basis::{BookRates, FittedBasis};
+use crate::data::Sex;
+use crate::report::data::{FAN_PROBABILITIES, FanChart, FanMeasure, FanPoint, YearValue};
 use crate::risk::decomposition::Decomposition;
 use crate::risk::quantile::{quantile_sorted, sorted};
 use crate::risk::summary::RunSummary;
@@ -49,6 +51,9 @@ pub struct BookBasisReport {
     /// The spread's fan, every [`FAN_STEP_YEARS`] years (empty when the spread is not
     /// drawn).
     pub fan: Vec<SpreadQuantiles>,
+    /// The spread's fitted values and yearly projected quantiles, drawn as a fan (`None`
+    /// when the spread is not drawn).
+    pub spread_chart: Option<FanChart>,
     /// The capital decomposition, when the run was stochastic.
     pub decomposition: Option<Decomposition>,
     /// Under Li–Lee, each sex's two-population fit in brief (empty otherwise).
@@ -87,6 +92,7 @@ pub fn gather(
     let rates = &basis.rates;
     let n = scenarios.min(FAN_SCENARIOS);
     let mut fan = Vec::new();
+    let mut spread_chart = None;
     if rates.uncertainty().spread && n > 0 {
         let mut paths: Vec<Vec<f64>> = Vec::with_capacity(n as usize);
         let (mut draw, mut shocks) = (ScenarioBasis::default(), Vec::new());
@@ -105,6 +111,7 @@ pub fn gather(
                 p95: quantile_sorted(&column, 0.95),
             });
         }
+        spread_chart = Some(spread_fan(rates, &paths, first));
     }
     BookBasisReport {
         level: d.level,
@@ -114,6 +121,7 @@ pub fn gather(
         overall: d.actual_to_expected.overall.clone(),
         bands: d.actual_to_expected.by_age_band.clone(),
         fan,
+        spread_chart,
         decomposition: summary.and_then(|s| s.decomposition.clone()),
         li_lee: rates
             .li_lee_fits()
@@ -130,5 +138,58 @@ pub fn gather(
                 correlation: f.correlation,
             })
             .collect(),
+    }
+}
+
+/// The fan of the spread: its fitted values from the book's experience (the relative
+/// model's κ̂_t, or Li–Lee's k_t of the book population, first sex) and every projected
+/// year's quantiles over `paths` (each from `first_year` on).
+fn spread_fan(rates: &BookRates, paths: &[Vec<f64>], first_year: i32) -> FanChart {
+    let (li_lee, sex, history) = match rates.li_lee_fits().and_then(|f| f.first()) {
+        Some(fit) => (
+            true,
+            fit.sex,
+            fit.years
+                .iter()
+                .zip(fit.components.own_index[1].iter())
+                .map(|(year, &value)| YearValue { year, value })
+                .collect(),
+        ),
+        None => {
+            let years = &rates.fit().years;
+            (
+                false,
+                Sex::F,
+                years
+                    .years
+                    .iter()
+                    .zip(&years.values)
+                    .map(|(&year, &value)| YearValue { year, value })
+                    .collect(),
+            )
+        }
+    };
+    let years = paths.first().map_or(0, Vec::len);
+    let projection = (0..years)
+        .map(|h| {
+            let column = sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>());
+            let q = FAN_PROBABILITIES.map(|p| quantile_sorted(&column, p));
+            FanPoint {
+                year: first_year + h as i32,
+                q005: q[0],
+                q050: q[1],
+                q250: q[2],
+                q500: q[3],
+                q750: q[4],
+                q950: q[5],
+                q995: q[6],
+            }
+        })
+        .collect();
+    FanChart {
+        measure: FanMeasure::BookSpread { li_lee },
+        sex,
+        history,
+        projection,
     }
 }

@@ -202,6 +202,12 @@ pub enum FanMeasure {
         /// Age of the rate.
         age: u32,
     },
+    /// The book's spread against the population (`[basis]`): κ_t of the relative model,
+    /// or the book population's own index k_t under Li–Lee.
+    BookSpread {
+        /// Whether the spread is Li–Lee's own index.
+        li_lee: bool,
+    },
 }
 
 /// Observed history and projected quantiles of one measure for one sex.

@@ -94,7 +94,7 @@ pub fn page(data: &ReportData) -> Result<String> {
                 body,
             },
         ),
-        basis_section(data),
+        basis_section(data)?,
         projection_section(data)?,
         lifetime_section(&data.lifetimes)?,
         fit_section(data)?,
@@ -478,8 +478,10 @@ fn li_lee_note(b: &crate::report::basis::BookBasisReport) -> String {
 }
 
 /// "Book against population": A/E by age band, the spread's fan, the decomposition.
-fn basis_section(data: &ReportData) -> Option<Section> {
-    let b = data.book_basis.as_ref()?;
+fn basis_section(data: &ReportData) -> Result<Option<Section>> {
+    let Some(b) = data.book_basis.as_ref() else {
+        return Ok(None);
+    };
     let mut body = li_lee_note(b);
     body += &format!(
         "<p class=\"note\">{}</p>\n",
@@ -521,6 +523,16 @@ fn basis_section(data: &ReportData) -> Option<Section> {
     }
     body.push_str(&row("All ages", &cells(&b.overall), Some("total")));
     body.push_str("</tbody>\n</table>\n");
+    if let Some(chart) = b.spread_chart.as_ref().filter(|c| charts::fan::has_data(c)) {
+        body.push_str(&figure(
+            &charts::fan_chart(chart)?,
+            &charts::fan::title(chart),
+            Some(
+                "Dots: fitted from the book's experience. Line: median of the projected \
+                 scenarios. Bands: central 50 %, 90 % and 99 % of the scenarios in each year.",
+            ),
+        ));
+    }
     if !b.fan.is_empty() {
         body.push_str(&table_head(
             Some(if b.li_lee.is_empty() {
@@ -578,11 +590,11 @@ fn basis_section(data: &ReportData) -> Option<Section> {
         body.push_str(&row("Diversification", &values, Some("total")));
         body.push_str("</tbody>\n</table>\n");
     }
-    Some(Section {
+    Ok(Some(Section {
         id: "basis",
         heading: "Book against population",
         body,
-    })
+    }))
 }
 
 fn projection_section(data: &ReportData) -> Result<Option<Section>> {

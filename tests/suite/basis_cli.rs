@@ -56,6 +56,12 @@ fn basis_run_writes_the_fit_and_the_decomposition() {
     let report = std::fs::read_to_string(dir.path().join("out/report.html")).unwrap();
     assert!(report.contains("Book against population"));
     assert!(report.contains("Trend + level + spread"));
+    // The spread's fan: a chart of the fitted κ̂_t and the projected years' quantiles.
+    let section = &report[report.find("Book against population").unwrap()..];
+    let chart = section
+        .find("The book&#39;s spread κ_t against the population: fitted and projected")
+        .expect("the spread's fan chart");
+    assert!(section[chart..].find("<svg").unwrap() < section[chart..].find("</figure>").unwrap());
 
     let summary = json(dir.path().join("out/summary.json"));
     let d = &summary["decomposition"];

@@ -115,6 +115,7 @@ fn li_lee_run_writes_the_fit_the_decomposition_and_hedges() {
     let report = std::fs::read_to_string(dir.path().join("out/report.html")).unwrap();
     assert!(report.contains("Book against population"));
     assert!(report.contains("Li &amp; Lee (2005)"));
+    assert!(report.contains("own index k_t, females: fitted and projected"));
     assert!(report.contains("not drawn"));
 
     // Index hedges float on the index population: the gap between the populations is

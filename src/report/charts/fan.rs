@@ -30,6 +30,12 @@ pub fn title(chart: &FanChart) -> String {
         FanMeasure::MortalityRate { age } => {
             format!("Probability of death at age {age}, {sex}: observed and projected")
         }
+        FanMeasure::BookSpread { li_lee: false } => {
+            "The book's spread κ_t against the population: fitted and projected".to_string()
+        }
+        FanMeasure::BookSpread { li_lee: true } => {
+            format!("The book population's own index k_t, {sex}: fitted and projected")
+        }
     }
 }
 
@@ -139,7 +145,16 @@ pub fn fan_chart(chart: &FanChart) -> Result<String> {
                     .map_err(draw_error)?;
                 draw_fan(&mut ctx, &history, &projection)
             }
-            FanMeasure::PeriodLifeExpectancy { age } => {
+            FanMeasure::PeriodLifeExpectancy { .. } | FanMeasure::BookSpread { .. } => {
+                let y_desc = match chart.measure {
+                    FanMeasure::PeriodLifeExpectancy { age } => {
+                        format!("Period life expectancy at age {age} (years)")
+                    }
+                    FanMeasure::BookSpread { li_lee: false } => {
+                        "κ_t: log of the book's rate over the fitted level".to_string()
+                    }
+                    _ => "k_t: the book population's own index".to_string(),
+                };
                 let (lo, hi) = padded(values, 0.05);
                 let y_ticks = linear_ticks(lo, hi, 8);
                 let y_format = |v: &f64| y_ticks.label(*v);
@@ -148,7 +163,7 @@ pub fn fan_chart(chart: &FanChart) -> Result<String> {
                     .map_err(draw_error)?;
                 ctx.configure_mesh()
                     .x_desc("Calendar year")
-                    .y_desc(format!("Period life expectancy at age {age} (years)"))
+                    .y_desc(y_desc)
                     .x_labels(x_ticks)
                     .y_labels(y_ticks.max_ticks)
                     .x_label_formatter(&x_format)
