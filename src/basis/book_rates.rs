@@ -67,6 +67,7 @@ pub struct BookBuffers {
     basis: ScenarioBasis,
     shocks: Vec<f64>,
     q: [Vec<f64>; 2],
+    age_terms: Vec<f64>,
 }
 
 impl BookRates {
@@ -244,7 +245,12 @@ impl BookRates {
         buffers: &'b mut BookBuffers,
     ) -> [Option<RateSurface<'b>>; 2] {
         let last_year = surfaces.iter().flatten().map(RateSurface::last_year).max();
-        let BookBuffers { basis, shocks, q } = buffers;
+        let BookBuffers {
+            basis,
+            shocks,
+            q,
+            age_terms,
+        } = buffers;
         self.draw(
             uncertainty,
             scenario,
@@ -256,7 +262,7 @@ impl BookRates {
             if let Some(s) = surface {
                 match &self.li_lee {
                     Some(fits) => fill_li_lee(&fits[slot], basis, slot, s, &mut q[slot]),
-                    None => self.fill(basis, s, &mut q[slot]),
+                    None => self.fill(basis, s, age_terms, &mut q[slot]),
                 }
             }
         }
@@ -283,17 +289,34 @@ impl BookRates {
         }
     }
 
-    /// The book's q over one population surface.
-    fn fill(&self, basis: &ScenarioBasis, surface: &RateSurface<'_>, out: &mut Vec<f64>) {
+    /// The book's q over one population surface. A NaN population rate, a cell the
+    /// projection left out because no reader takes it, stays NaN without the three
+    /// transcendental calls a rate costs.
+    fn fill(
+        &self,
+        basis: &ScenarioBasis,
+        surface: &RateSurface<'_>,
+        age_terms: &mut Vec<f64>,
+        out: &mut Vec<f64>,
+    ) {
         out.clear();
         out.reserve(surface.q.len());
-        let age_terms: Vec<f64> = (0..surface.ages)
-            .map(|i| self.fit.age_term(basis.slope, surface.first_age + i as i32))
-            .collect();
+        age_terms.clear();
+        age_terms.extend(
+            (0..surface.ages).map(|i| self.fit.age_term(basis.slope, surface.first_age + i as i32)),
+        );
         for (row, rates) in surface.q.chunks_exact(surface.ages).enumerate() {
+            if rates.iter().all(|q| q.is_nan()) {
+                out.extend_from_slice(rates);
+                continue;
+            }
             let year_term = basis.level + self.spread_in(basis, surface.first_year + row as i32);
-            for (&q, &age_term) in rates.iter().zip(&age_terms) {
-                out.push(book_q(q, (year_term + age_term).exp()));
+            for (&q, &age_term) in rates.iter().zip(age_terms.iter()) {
+                out.push(if q.is_nan() {
+                    q
+                } else {
+                    book_q(q, (year_term + age_term).exp())
+                });
             }
         }
     }
@@ -320,7 +343,12 @@ fn fill_li_lee(
             [own[0][h], own[1][h]]
         });
         for (&q, &row) in rates.iter().zip(&rows) {
-            out.push(book_q(q, fit.log_ratio(row, k).exp()));
+            // A cell nobody reads (NaN) stays NaN without its exp.
+            out.push(if q.is_nan() {
+                q
+            } else {
+                book_q(q, fit.log_ratio(row, k).exp())
+            });
         }
     }
 }

@@ -25,7 +25,8 @@ use crate::pipeline::{
     hedge_stage, summarize, value_book, write_hedge_table_to,
 };
 use crate::projection::engine::ROW_GROUP_ROWS;
-use crate::projection::{OutputOptions, Projector, Written, scenario_ids, write_projection};
+use crate::projection::engine::write_projection_keeping;
+use crate::projection::{OutputOptions, Projector, Written, scenario_ids};
 use crate::report::gather::{ReportInputs, fan_probes, report_data};
 use crate::report::model_risk::model_risk;
 use crate::risk::summary::RunSummary;
@@ -272,9 +273,13 @@ fn run_model(
     let fits = ProjectedFits::fit_kind(config, cx.experience, kind)?;
     let mut projector = fits.projector(config, cx.experience)?;
     let bar = Progress::new(&stage("projecting"), ids.end - ids.start, cx.quiet);
-    let written = write_projection(&mut projector, ids.clone(), &cx.options, &|n| {
-        bar.advance(n)
-    })?;
+    // The charts' period e°65 (the first stochastic scenarios) comes from the projection,
+    // which computes it for `period.parquet`; the valuation then reads only the book's cells.
+    let charted = 1..1 + LIFETIME_SCENARIOS_KEPT as u64;
+    let (written, period) =
+        write_projection_keeping(&mut projector, ids.clone(), &cx.options, charted, &|n| {
+            bar.advance(n)
+        })?;
     bar.finish();
     stages.done("project");
     let Some(book) = cx.book else {
@@ -299,7 +304,7 @@ fn run_model(
     let extracts = Extracts {
         probes,
         every_scenario: probe_offset,
-        period: true,
+        period: false,
         charts_end: ids.start.max(1) + LIFETIME_SCENARIOS_KEPT as u64,
     };
     let request = ValueRequest {
@@ -314,8 +319,9 @@ fn run_model(
         request.ids.end - request.ids.start,
         cx.quiet,
     );
-    let (outcome, mut files) =
+    let (mut outcome, mut files) =
         value_book(config, &setup, &projector, &request, &|n| bar.advance(n))?;
+    outcome.period = period;
     bar.finish();
     stages.done("value");
     let mut summary = summarize(

@@ -8,8 +8,13 @@
 //! closed form and allocation-free because it runs for every projected year of every
 //! scenario.
 
+use std::ops::Range;
+
 /// A central rate at or above 1 has no logit; it is capped just below 1 for the fit.
 const MAX_FIT_RATE: f64 = 1.0 - 1e-12;
+
+/// Logits [`Kannisto::fit`] keeps between its passes (more fitted ages are taken again).
+const KEPT_LOGITS: usize = 32;
 
 /// Kannisto's logistic law, logit μ(x) = `alpha` + `beta` x.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -49,18 +54,29 @@ impl Kannisto {
             return None;
         }
         let mean_age = f64::from(first_age) + (n as f64 - 1.0) / 2.0;
+        // The fit runs for every projected year of every scenario: each logit is taken
+        // once and kept for the second pass (a `ln` is most of a rate's cost).
+        let mut logits = [0.0; KEPT_LOGITS];
         let mut mean_logit = 0.0;
-        for &m in rates {
+        for (i, &m) in rates.iter().enumerate() {
             if m.is_nan() || m <= 0.0 {
                 return None;
             }
-            mean_logit += logit(m.min(MAX_FIT_RATE));
+            let l = logit(m.min(MAX_FIT_RATE));
+            if let Some(slot) = logits.get_mut(i) {
+                *slot = l;
+            }
+            mean_logit += l;
         }
         mean_logit /= n as f64;
         let (mut sxy, mut sxx) = (0.0, 0.0);
         for (i, &m) in rates.iter().enumerate() {
             let dx = f64::from(first_age) + i as f64 - mean_age;
-            sxy += dx * (logit(m.min(MAX_FIT_RATE)) - mean_logit);
+            let l = match logits.get(i) {
+                Some(&l) => l,
+                None => logit(m.min(MAX_FIT_RATE)),
+            };
+            sxy += dx * (l - mean_logit);
             sxx += dx * dx;
         }
         let beta = sxy / sxx;
@@ -92,30 +108,83 @@ impl KannistoClosure {
     /// fitted ages, 1 − exp(−μ) from the Kannisto law above them, and 1 at `max_age`.
     /// `out` must have length `max_age − first_age + 1` and `fitted` must be at least 2.
     pub fn close(&self, first_age: i32, fitted: usize, out: &mut [f64]) {
+        self.close_cells(first_age, fitted, 0..out.len(), out);
+    }
+
+    /// The fitted ages (indices from the first) whose central rates
+    /// [`KannistoClosure::close_cells`] needs for `cells`: those among the cells, and the
+    /// top `fit_ages` fitted ones when a cell lies above them (the year's law is fitted
+    /// there). One range: any gap between the two is included.
+    pub fn central_cells(
+        &self,
+        first_age: i32,
+        fitted: usize,
+        cells: Range<usize>,
+    ) -> Range<usize> {
+        let own = cells.start.min(fitted)..cells.end.min(fitted);
+        if self.closed_cells(first_age, fitted, &cells).is_empty() {
+            return own;
+        }
+        let k = self.fit_ages.clamp(2, fitted);
+        let start = if own.is_empty() {
+            fitted - k
+        } else {
+            own.start.min(fitted - k)
+        };
+        start..fitted
+    }
+
+    /// The cells of `cells` above the fitted ages and below `max_age`: the law's.
+    fn closed_cells(&self, first_age: i32, fitted: usize, cells: &Range<usize>) -> Range<usize> {
+        let last = (self.max_age - first_age).max(0) as usize;
+        cells.start.max(fitted)..cells.end.min(last)
+    }
+
+    /// As [`KannistoClosure::close`] for the cells `cells` of the table only, each with
+    /// the value `close` gives it, bit for bit: on entry `out[self.central_cells(fitted,
+    /// cells)]` holds the model's central rates; on exit `out[cells]` holds q, every
+    /// other entry is NaN or as it was (those taken only for the law's fit become NaN).
+    pub fn close_cells(&self, first_age: i32, fitted: usize, cells: Range<usize>, out: &mut [f64]) {
         debug_assert_eq!(out.len(), (self.max_age - first_age + 1) as usize);
         debug_assert!(fitted >= 2 && fitted <= out.len());
-        let k = self.fit_ages.clamp(2, fitted);
-        let top_first = first_age + (fitted - k) as i32;
-        let law = Kannisto::fit(top_first, &out[fitted - k..fitted]);
-        for q in out[..fitted].iter_mut() {
+        debug_assert!(cells.end <= out.len());
+        let last = out.len() - 1;
+        let closed = self.closed_cells(first_age, fitted, &cells);
+        let law = if closed.is_empty() {
+            None
+        } else {
+            let k = self.fit_ages.clamp(2, fitted);
+            let top_first = first_age + (fitted - k) as i32;
+            // A top rate of zero (no deaths anywhere near the top): nothing to extend,
+            // so the last fitted rate is held.
+            let top = &out[fitted - k..fitted];
+            Some(Kannisto::fit(top_first, top).ok_or_else(|| -(-out[fitted - 1]).exp_m1()))
+        };
+        // The central cells below `cells` were taken for the law only.
+        let central = self.central_cells(first_age, fitted, cells.clone());
+        let split = cells.start.clamp(central.start, central.end);
+        out[central.start..split].fill(f64::NAN);
+        for q in out[split..central.end].iter_mut() {
             *q = -(-*q).exp_m1();
         }
-        let last = out.len() - 1;
         match law {
-            Some(law) => {
-                for (i, q) in out.iter_mut().enumerate().take(last).skip(fitted) {
+            Some(Ok(law)) => {
+                for (i, q) in out
+                    .iter_mut()
+                    .enumerate()
+                    .take(closed.end)
+                    .skip(closed.start)
+                {
                     let age = f64::from(first_age) + i as f64;
                     *q = -(-law.force(age)).exp_m1();
                 }
             }
-            // A top rate of zero (no deaths anywhere near the top): nothing to extend,
-            // so the last fitted rate is held.
-            None => {
-                let hold = out[fitted - 1];
-                out[fitted..last].fill(hold);
-            }
+            Some(Err(hold)) => out[closed].fill(hold),
+            None => {}
         }
-        out[last] = 1.0;
+        if cells.contains(&last) {
+            out[last] = 1.0;
+        }
     }
 }
 
@@ -132,5 +201,48 @@ mod tests {
         assert!((fitted.beta - law.beta).abs() < 1e-11);
         assert!(Kannisto::fit(90, &[0.1]).is_none());
         assert!(Kannisto::fit(90, &[0.1, 0.0]).is_none());
+    }
+
+    /// Central rates of a Gompertz-like model at ages 60..=99, for a table to 120.
+    fn central(first_age: i32, fitted: usize) -> Vec<f64> {
+        (0..fitted)
+            .map(|i| (-9.5 + 0.09 * f64::from(first_age + i as i32)).exp())
+            .collect()
+    }
+
+    #[test]
+    fn closing_some_cells_gives_each_the_whole_tables_value() {
+        let closure = KannistoClosure {
+            fit_ages: 10,
+            max_age: 120,
+        };
+        let (first_age, fitted) = (60, 40);
+        let len = (closure.max_age - first_age + 1) as usize;
+        for top in [central(first_age, fitted), {
+            // No deaths near the top: the last fitted rate is held.
+            let mut m = central(first_age, fitted);
+            m[fitted - 1] = 0.0;
+            m
+        }] {
+            let mut whole = vec![0.0; len];
+            whole[..fitted].copy_from_slice(&top);
+            closure.close(first_age, fitted, &mut whole);
+            for start in (0..len).step_by(3) {
+                for end in (start..=len).step_by(2) {
+                    let cells = start..end;
+                    let mut some = vec![f64::NAN; len];
+                    let central = closure.central_cells(first_age, fitted, cells.clone());
+                    some[central.clone()].copy_from_slice(&top[central]);
+                    closure.close_cells(first_age, fitted, cells.clone(), &mut some);
+                    for i in 0..len {
+                        if cells.contains(&i) {
+                            assert_eq!(some[i].to_bits(), whole[i].to_bits(), "{cells:?} at {i}");
+                        } else {
+                            assert!(some[i].is_nan(), "{cells:?} at {i}: {}", some[i]);
+                        }
+                    }
+                }
+            }
+        }
     }
 }

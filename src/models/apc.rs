@@ -309,12 +309,24 @@ impl FittedModel for ApcFit {
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
+        self.cohort_rates_in(factors, gamma_by_age, 0..out.len(), out);
+    }
+
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        gamma_by_age: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         let k = factors[0];
-        let n = self.ax.len();
-        for ((m, a), g) in out[..n].iter_mut().zip(&self.ax).zip(gamma_by_age) {
+        let (first, n) = (self.basis.ages.first, self.ax.len());
+        let central = self.basis.closure.central_cells(first, n, cells.clone());
+        let (ax, gamma) = (&self.ax[central.clone()], &gamma_by_age[central.clone()]);
+        for ((m, a), g) in out[central].iter_mut().zip(ax).zip(gamma) {
             *m = (a + k + g).exp();
         }
-        self.basis.closure.close(self.basis.ages.first, n, out);
+        self.basis.closure.close_cells(first, n, cells, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {

@@ -305,13 +305,29 @@ impl FittedModel for CbdFit {
     }
 
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
+        self.cohort_rates_in(factors, &[], 0..out.len(), out);
+    }
+
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        _: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         let (k1, k2) = (factors[0], factors[1]);
         let n = self.basis.ages.len();
         let first = f64::from(self.basis.ages.first) - self.xbar;
-        for (i, m) in out[..n].iter_mut().enumerate() {
-            *m = softplus(k1 + (first + i as f64) * k2);
+        let central = self
+            .basis
+            .closure
+            .central_cells(self.basis.ages.first, n, cells.clone());
+        for i in central {
+            out[i] = softplus(k1 + (first + i as f64) * k2);
         }
-        self.basis.closure.close(self.basis.ages.first, n, out);
+        self.basis
+            .closure
+            .close_cells(self.basis.ages.first, n, cells, out);
     }
 
     fn parameters_json(&self) -> serde_json::Value {

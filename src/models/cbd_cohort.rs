@@ -329,12 +329,22 @@ impl FittedModel for CbdCohortFit {
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
-        let n = self.basis.ages.len();
-        for (i, m) in out[..n].iter_mut().enumerate() {
+        self.cohort_rates_in(factors, gamma_by_age, 0..out.len(), out);
+    }
+
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        gamma_by_age: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
+        let (first, n) = (self.basis.ages.first, self.basis.ages.len());
+        for i in self.basis.closure.central_cells(first, n, cells.clone()) {
             // softplus(η) = −ln(1 − q): the central rate the closure expects.
-            *m = softplus(self.eta(i, factors, gamma_by_age[i]));
+            out[i] = softplus(self.eta(i, factors, gamma_by_age[i]));
         }
-        self.basis.closure.close(self.basis.ages.first, n, out);
+        self.basis.closure.close_cells(first, n, cells, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {

@@ -306,12 +306,27 @@ impl FittedModel for LeeCarterFit {
     }
 
     fn rates(&self, factors: &[f64], out: &mut [f64]) {
+        self.cohort_rates_in(factors, &[], 0..out.len(), out);
+    }
+
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        _: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         let k = factors[0];
-        let n = self.ax.len();
-        for ((m, a), b) in out[..n].iter_mut().zip(self.ax.iter()).zip(self.bx.iter()) {
+        let (first, n) = (self.basis.ages.first, self.ax.len());
+        let central = self.basis.closure.central_cells(first, n, cells.clone());
+        let (ax, bx) = (
+            &self.ax.as_slice()[central.clone()],
+            &self.bx.as_slice()[central.clone()],
+        );
+        for ((m, a), b) in out[central].iter_mut().zip(ax).zip(bx) {
             *m = (a + b * k).exp();
         }
-        self.basis.closure.close(self.basis.ages.first, n, out);
+        self.basis.closure.close_cells(first, n, cells, out);
     }
 
     fn parameters_json(&self) -> serde_json::Value {

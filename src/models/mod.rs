@@ -123,6 +123,21 @@ pub trait FittedModel: std::any::Any + Send + Sync {
         let _ = gamma_by_age;
         self.rates(factors, out);
     }
+
+    /// Like [`FittedModel::cohort_rates`] for the cells `out[cells]` only, each with the
+    /// value the whole row gives it, bit for bit: a projection computes the cells its
+    /// readers take (a book's cohort diagonals) and no others. Entries outside `cells` are
+    /// left as they were or set to NaN. By default the whole row.
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        gamma_by_age: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
+        let _ = cells;
+        self.cohort_rates(factors, gamma_by_age, out);
+    }
 }
 
 /// A checked model specification that can be fitted to a population.

@@ -591,12 +591,22 @@ impl FittedModel for RenshawHabermanFit {
     }
 
     fn cohort_rates(&self, factors: &[f64], gamma_by_age: &[f64], out: &mut [f64]) {
+        self.cohort_rates_in(factors, gamma_by_age, 0..out.len(), out);
+    }
+
+    fn cohort_rates_in(
+        &self,
+        factors: &[f64],
+        gamma_by_age: &[f64],
+        cells: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) {
         let k = factors[0];
-        let n = self.ax.len();
-        for (i, m) in out[..n].iter_mut().enumerate() {
-            *m = (self.ax[i] + self.bx[i] * k + self.b0x[i] * gamma_by_age[i]).exp();
+        let (first, n) = (self.basis.ages.first, self.ax.len());
+        for i in self.basis.closure.central_cells(first, n, cells.clone()) {
+            out[i] = (self.ax[i] + self.bx[i] * k + self.b0x[i] * gamma_by_age[i]).exp();
         }
-        self.basis.closure.close(self.basis.ages.first, n, out);
+        self.basis.closure.close_cells(first, n, cells, out);
     }
 
     fn cohort_effects(&self) -> Option<CohortEffects> {

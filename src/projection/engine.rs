@@ -265,6 +265,8 @@ struct ChunkGroups {
     paths: Option<EncodedRowGroup>,
     factors: Vec<ArrayRef>,
     period: Option<Vec<ArrayRef>>,
+    /// The period figures of the chunk's scenarios that the caller keeps, in order.
+    kept: Vec<Vec<f64>>,
 }
 
 struct Layout {
@@ -287,8 +289,17 @@ fn encode_chunk(
     layout: &Layout,
     range: Range<u64>,
     paths_encoder: Option<&RowGroupEncoder>,
+    keep: &Range<u64>,
 ) -> Result<ChunkGroups> {
     let mut buf = projector.buffer();
+    // Without its paths a scenario's rates feed only e°65: the ages from 65 up.
+    if paths_encoder.is_none() {
+        let mut plan = projector.no_cells();
+        if layout.period_index.is_some() {
+            plan.add_ages_from(PERIOD_AGE);
+        }
+        buf.set_cells(&plan);
+    }
     let (years, ages) = (buf.years(), buf.ages());
     let n_sexes = buf.sexes().len();
     let per_scenario = n_sexes * years.len() * ages.len();
@@ -310,9 +321,14 @@ fn encode_chunk(
         cols.period = Some(Default::default());
     }
     let ages_column: Vec<i16> = ages.iter().map(|a| a as i16).collect();
+    let mut kept = Vec::new();
     for scenario in range {
         projector.generate(scenario, &mut buf)?;
         append_scenario(&buf, layout, &ages_column, &mut cols)?;
+        if let (true, Some((_, e65))) = (keep.contains(&scenario), cols.period.as_ref()) {
+            let figures = n_sexes * years.len();
+            kept.push(e65[e65.len() - figures..].to_vec());
+        }
     }
     let Columns {
         paths,
@@ -342,6 +358,7 @@ fn encode_chunk(
         paths,
         factors: factor_arrays,
         period,
+        kept,
     })
 }
 
@@ -403,6 +420,20 @@ pub fn write_projection(
     options: &OutputOptions,
     progress: &(dyn Fn(u64) + Sync),
 ) -> Result<Written> {
+    write_projection_keeping(projector, ids, options, 0..0, progress).map(|(written, _)| written)
+}
+
+/// As [`write_projection`], also handing back the period e°65 of the scenarios in `keep`
+/// that are written, in scenario order: per scenario, sex by sex, each projected year, so
+/// that a run need not compute the rates they come from again to chart them. Empty when
+/// age 65 is not projected.
+pub fn write_projection_keeping(
+    projector: &mut Projector,
+    ids: Range<u64>,
+    options: &OutputOptions,
+    keep: Range<u64>,
+    progress: &(dyn Fn(u64) + Sync),
+) -> Result<(Written, Vec<Vec<f64>>)> {
     let ids = match options.shard {
         Some(shard) => shard.range(ids)?,
         None => ids,
@@ -497,11 +528,12 @@ pub fn write_projection(
             .par_iter()
             .map(|r| {
                 let encoder = paths_encoder.as_deref().filter(|_| r.end <= path_end);
-                encode_chunk(projector, &layout, r.clone(), encoder)
+                encode_chunk(projector, &layout, r.clone(), encoder, &keep)
             })
             .collect()
     };
     let mut path_rows = 0u64;
+    let mut kept = Vec::new();
     let mut append_batch = |groups: Vec<ChunkGroups>, ranges: &[Range<u64>]| -> Result<()> {
         for (group, range) in groups.into_iter().zip(ranges) {
             let n = range.end - range.start;
@@ -510,6 +542,7 @@ pub fn write_projection(
                 path_rows += n * paths_per_scenario as u64;
             }
             factors_sink.write_columns(group.factors)?;
+            kept.extend(group.kept);
             if let (Some(sink), Some(period)) = (period_sink.as_mut(), group.period) {
                 sink.write_columns(period)?;
             }
@@ -548,9 +581,12 @@ pub fn write_projection(
     for file in finished {
         file.commit()?;
     }
-    Ok(Written {
-        scenarios: ids,
-        files,
-        path_rows,
-    })
+    Ok((
+        Written {
+            scenarios: ids,
+            files,
+            path_rows,
+        },
+        kept,
+    ))
 }

@@ -26,6 +26,7 @@
 //! - The bootstrap resamples D* ~ Poisson(E^c · m̂) with m̂ = −ln(1 − q̂) from the fitted
 //!   rates (the constant-force convention), for Lee–Carter and CBD alike.
 
+pub mod cells;
 pub mod cohort_paths;
 pub mod engine;
 pub mod joint;
@@ -35,6 +36,7 @@ pub mod streams;
 pub mod surface;
 pub mod uncertainty;
 
+pub use cells::CellPlan;
 pub use cohort_paths::{CohortBasis, CohortDraw, CohortPath};
 pub use engine::{OutputOptions, Shard, Written, write_projection};
 pub use joint::JointBasis;

@@ -18,6 +18,7 @@ use crate::data::config::{ProjectionConfig, UncertaintyMethod};
 use crate::data::{Sex, Span};
 use crate::error::{Error, Result};
 use crate::models::FittedModel;
+use crate::projection::cells::CellPlan;
 use crate::projection::cohort_paths::{CohortDraw, CohortPath};
 use crate::projection::joint::JointBasis;
 use crate::projection::streams::{Purpose, stream};
@@ -90,6 +91,8 @@ pub struct ScenarioPaths {
     factors: Vec<f64>,
     rates: Vec<f64>,
     cohorts: Vec<Option<CohortPath>>,
+    /// The cells [`Projector::generate`] computes; the others hold NaN.
+    cells: CellPlan,
 }
 
 impl ScenarioPaths {
@@ -113,7 +116,22 @@ impl ScenarioPaths {
         self.ages
     }
 
-    /// Rates q of the sex at `sex_index`, years × ages in row-major order.
+    /// Computes only the cells of `plan` from the next scenario on (a new plan sets every
+    /// rate to NaN until it is computed). A buffer starts with the full grid.
+    pub fn set_cells(&mut self, plan: &CellPlan) {
+        if self.cells != *plan {
+            self.cells.clone_from(plan);
+            self.rates.fill(f64::NAN);
+        }
+    }
+
+    /// The cells computed.
+    pub fn cells(&self) -> &CellPlan {
+        &self.cells
+    }
+
+    /// Rates q of the sex at `sex_index`, years × ages in row-major order (NaN outside
+    /// the buffer's [`CellPlan`]).
     pub fn rates(&self, sex_index: usize) -> &[f64] {
         let block = self.years.len() * self.ages.len();
         &self.rates[sex_index * block..(sex_index + 1) * block]
@@ -264,7 +282,13 @@ impl Projector {
             factors: vec![0.0; years.len() * b.dims()],
             rates: vec![0.0; n * years.len() * ages.len()],
             cohorts: b.cohorts().paths(self.settings.horizon),
+            cells: CellPlan::full(b.sexes(), years, ages),
         }
+    }
+
+    /// A plan of no cells on this projector's grid, to add readers' cells to.
+    pub fn no_cells(&self) -> CellPlan {
+        CellPlan::empty(self.central.sexes(), self.years(), self.ages())
     }
 
     /// Builds, in parallel, the bootstrap replicates that `scenarios` use and that are not
@@ -315,9 +339,9 @@ impl Projector {
         })
     }
 
-    /// Fills `out` with scenario `scenario`; a rate outside (0, 1) below `max_age` (or
-    /// outside (0, 1] at `max_age`, where the closure sets it to 1), or a non-finite one, is
-    /// an error naming the scenario, sex, year and age.
+    /// Fills `out` with scenario `scenario` (the rates of its [`CellPlan`]); a rate outside
+    /// (0, 1) below `max_age` (or outside (0, 1] at `max_age`, where the closure sets it to
+    /// 1), or a non-finite one, is an error naming the scenario, sex, year and age.
     pub fn generate(&self, scenario: u64, out: &mut ScenarioPaths) -> Result<()> {
         self.generate_years(scenario, out, usize::MAX)
     }
@@ -403,13 +427,15 @@ impl Projector {
             let block = &mut out.rates[i * n_years * n_ages..(i + 1) * n_years * n_ages];
             let cohort = out.cohorts[i].as_ref();
             for (h, row) in block.chunks_exact_mut(n_ages).take(years).enumerate() {
-                let k = &out.factors[h * dims + range.start..h * dims + range.end];
-                match cohort {
-                    // Age x in year T + h takes γ of the cohort born in T + h − x.
-                    Some(c) => model.cohort_rates(k, c.by_age(h + 1), row),
-                    None => model.rates(k, row),
+                let cells = out.cells.cells(i, h);
+                if cells.is_empty() {
+                    continue;
                 }
-                if let Some(a) = first_bad_rate(row) {
+                let k = &out.factors[h * dims + range.start..h * dims + range.end];
+                // Age x in year T + h takes γ of the cohort born in T + h − x.
+                let gamma = cohort.map_or(&[][..], |c| c.by_age(h + 1));
+                model.cohort_rates_in(k, gamma, cells.clone(), row);
+                if let Some(a) = first_bad_rate_in(row, cells) {
                     return Err(Error::Numerical(format!(
                         "scenario {}, sex {sex}, year {}, age {}: projected rate q = {} is not in \
                          (0, 1) (indices {:?}); the projected index has run so far that the rate \
@@ -433,11 +459,21 @@ impl Projector {
 /// driven so far that exp() or the logistic function saturated (a rate of 1 kills every
 /// life at once), and in (0, 1] at `max_age` itself.
 pub fn first_bad_rate(row: &[f64]) -> Option<usize> {
+    first_bad_rate_in(row, 0..row.len())
+}
+
+/// As [`first_bad_rate`] among the cells `cells` of the row (an index into the row).
+pub fn first_bad_rate_in(row: &[f64], cells: Range<usize>) -> Option<usize> {
     let last = row.len().checked_sub(1)?;
-    row.iter().enumerate().position(|(i, &q)| {
-        let below_one = if i == last { q <= 1.0 } else { q < 1.0 };
-        !(q > 0.0 && below_one)
-    })
+    let start = cells.start;
+    row[cells]
+        .iter()
+        .enumerate()
+        .position(|(i, &q)| {
+            let below_one = if start + i == last { q <= 1.0 } else { q < 1.0 };
+            !(q > 0.0 && below_one)
+        })
+        .map(|i| start + i)
 }
 
 #[cfg(test)]

@@ -19,7 +19,7 @@ use crate::basis::{BookBuffers, BookRates, Uncertainty};
 use crate::error::{Error, Result};
 use crate::projection::{Projector, Purpose, ScenarioPaths, stream};
 use crate::risk::CapitalSummary;
-use crate::valuation::{PreparedBook, ScenarioValue, Workspace};
+use crate::valuation::{Extracts, PreparedBook, ScenarioCells, ScenarioValue, Workspace};
 
 /// Measures valued per scenario, in this order.
 const MEASURES: [&str; 7] = [
@@ -87,7 +87,11 @@ pub fn decompose(
         with(true, false),
         with(false, true),
     ];
+    // Each measure reads the book's diagonals only (of the population's rates, then of
+    // the book's made from them).
+    let cells = ScenarioCells::new(projector, book, None, &Extracts::default());
     let mut central = projector.buffer();
+    central.set_cells(cells.every());
     projector.generate(0, &mut central)?;
     let central = &central;
     let values = ids
@@ -95,8 +99,10 @@ pub fn decompose(
         .into_par_iter()
         .map_init(
             || {
+                let mut paths = projector.buffer();
+                paths.set_cells(cells.every());
                 (
-                    projector.buffer(),
+                    paths,
                     Workspace::default(),
                     BookBuffers::default(),
                     ScenarioValue::default(),

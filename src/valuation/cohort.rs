@@ -72,21 +72,30 @@ pub fn cohort_curve(
 ) -> usize {
     let max_age = surface.max_age();
     let years = (max_age - cohort.age + 1) as usize;
+    // Years below max_age read the diagonal, one row and one column further each year:
+    // a stride of `ages + 1` through the surface, bounds-checked once here.
+    let rated = years.saturating_sub(1);
+    let diagonal: &[f64] = match rated {
+        0 => &[],
+        n => {
+            let start = (year - surface.first_year) as usize * surface.ages
+                + (cohort.age - surface.first_age) as usize;
+            &surface.q[start..=start + (n - 1) * (surface.ages + 1)]
+        }
+    };
     q.clear();
+    q.resize(years, 1.0);
     survival.clear();
-    survival.push(1.0);
+    survival.resize(years + 1, 1.0);
     let mut alive = 1.0;
-    for k in 0..years {
+    let rates = diagonal.iter().step_by(surface.ages + 1);
+    for (k, (rate, &base)) in q[..rated].iter_mut().zip(rates).enumerate() {
         let age = cohort.age + k as i32;
-        let rate = if age >= max_age {
-            1.0
-        } else {
-            let base = surface.q(age, year + k as i32);
-            (base * scale * cohort.factor * level.factor(cohort.sex, age)).min(1.0)
-        };
-        q.push(rate);
+        *rate = (base * scale * cohort.factor * level.factor(cohort.sex, age)).min(1.0);
+    }
+    for (s, &rate) in survival[1..].iter_mut().zip(q.iter()) {
         alive *= 1.0 - rate;
-        survival.push(alive);
+        *s = alive;
     }
     years
 }

@@ -2,7 +2,8 @@
 //!
 //! Scenarios are regenerated from (seed, scenario) rather than read back from
 //! `paths.parquet`: generating one costs far less than reading it, and the valuation then
-//! works the same whether or not the paths were written. Chunks of scenarios are valued in
+//! works the same whether or not the paths were written, and only the cells the book and
+//! the extracts read are computed ([`ScenarioCells`]). Chunks of scenarios are valued in
 //! parallel and handed to the caller in order, so whatever the caller writes or keeps is
 //! identical for any thread count; each thread keeps its own buffers, so nothing in the
 //! per-scenario path allocates once they have grown.
@@ -16,6 +17,7 @@ use crate::data::Sex;
 use crate::error::{Error, Result};
 use crate::projection::period::{PERIOD_AGE, complete_expectancy};
 use crate::projection::{Projector, Purpose, ScenarioPaths, stream};
+use crate::valuation::cells::ScenarioCells;
 use crate::valuation::lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};
 use crate::valuation::portfolio::{NoPolicies, PolicySink, PreparedBook, ScenarioValue, Workspace};
 
@@ -95,6 +97,7 @@ pub fn value_scenarios(
     extracts: &Extracts,
     mut sink: impl FnMut(&[ScenarioResult]) -> Result<()>,
 ) -> Result<()> {
+    let cells = ScenarioCells::new(projector, book, lifetimes, extracts);
     let mut start = ids.start;
     while start < ids.end {
         let end = (start + CHUNK_SCENARIOS as u64).min(ids.end);
@@ -108,6 +111,7 @@ pub fn value_scenarios(
                     book_rates: BookBuffers::default(),
                 },
                 |buffers, scenario| {
+                    buffers.paths.set_cells(cells.of(scenario));
                     let mut result =
                         value_one(projector, book, lifetimes, settings, buffers, scenario)?;
                     extract(&buffers.paths, extracts, &mut result)?;

@@ -101,6 +101,16 @@ impl LifetimeTable {
         }
     }
 
+    /// The (sex, age) cohorts reported, each with multiplier 1.
+    pub fn cohorts(&self) -> &[Cohort] {
+        &self.cohorts
+    }
+
+    /// The valuation year, where the cohorts' diagonals start.
+    pub fn year(&self) -> i32 {
+        self.year
+    }
+
     /// Rows per scenario.
     pub fn rows_per_scenario(&self) -> usize {
         self.cohorts.len() * (self.horizons.len() + 1)

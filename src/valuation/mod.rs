@@ -1,5 +1,6 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
 
+pub mod cells;
 pub mod cohort;
 pub mod driver;
 pub mod files;
@@ -8,6 +9,7 @@ pub mod portfolio;
 pub mod replay;
 pub mod schedule;
 
+pub use cells::ScenarioCells;
 pub use cohort::{Cohort, LevelAdjustment};
 pub use driver::{DriverSettings, Extracts, ScenarioResult, value_scenarios};
 pub use lifetimes::{LifetimeRow, LifetimeTable, LifetimeWorkspace};

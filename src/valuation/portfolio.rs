@@ -538,17 +538,69 @@ impl PreparedBook {
 
 /// guide[b] = K((b + 1)/G) = max{k : S_k ≥ (b + 1)/G}: a lower bound on the death year of
 /// any U in bucket b, from which a short forward scan finds it.
+///
+/// Built per cohort and scenario, so by runs rather than bucket by bucket: S_k ≥ (b + 1)/G
+/// exactly when b < c_k = ⌊G S_k⌋ (G is a power of two, so G S_k is exact), and c_k does
+/// not increase with k, so year k is the answer for buckets c_{k+1} ≤ b < c_k.
 fn guide_table(survival: &[f64]) -> [u16; GUIDE_BUCKETS] {
     let mut guide = [0u16; GUIDE_BUCKETS];
-    let last = survival.len() - 1;
-    let mut k = last;
-    for (b, slot) in guide.iter_mut().enumerate() {
-        let threshold = (b + 1) as f64 / GUIDE_BUCKETS as f64;
-        // K is non-increasing in the threshold: walk down from the previous answer.
-        while k > 0 && survival[k] < threshold {
-            k -= 1;
-        }
-        *slot = k as u16;
+    let bucket_end = |s: f64| ((s * GUIDE_BUCKETS as f64).floor() as usize).min(GUIDE_BUCKETS);
+    let mut end = survival.first().map_or(0, |&s| bucket_end(s));
+    for (k, &next) in survival.iter().skip(1).chain([&0.0]).enumerate() {
+        let start = bucket_end(next).min(end);
+        guide[start..end].fill(k as u16);
+        end = start;
     }
     guide
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The table bucket by bucket: walk down from the previous bucket's answer.
+    fn guide_by_buckets(survival: &[f64]) -> [u16; GUIDE_BUCKETS] {
+        let mut guide = [0u16; GUIDE_BUCKETS];
+        let mut k = survival.len() - 1;
+        for (b, slot) in guide.iter_mut().enumerate() {
+            let threshold = (b + 1) as f64 / GUIDE_BUCKETS as f64;
+            while k > 0 && survival[k] < threshold {
+                k -= 1;
+            }
+            *slot = k as u16;
+        }
+        guide
+    }
+
+    #[test]
+    fn the_guide_built_by_runs_is_the_guide_built_by_buckets() {
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        for case in 0..500 {
+            let years = rng.random_range(1..80);
+            let mut s = vec![1.0];
+            for k in 0..years {
+                // Rates of 0 (ties), exact bucket edges, tiny and certain deaths.
+                let q: f64 = match rng.random_range(0..6) {
+                    0 => 0.0,
+                    1 => 1.0 / GUIDE_BUCKETS as f64,
+                    2 => 1e-9,
+                    _ => rng.random_range(0.0..0.3),
+                };
+                let last = s[k];
+                s.push(if k + 1 == years {
+                    0.0
+                } else {
+                    last * (1.0 - q)
+                });
+            }
+            if case % 7 == 0 {
+                // Survival exactly on the edges of buckets.
+                for (i, v) in s.iter_mut().enumerate().skip(1) {
+                    *v = ((GUIDE_BUCKETS - i.min(GUIDE_BUCKETS)) as f64) / GUIDE_BUCKETS as f64;
+                }
+            }
+            assert_eq!(guide_table(&s), guide_by_buckets(&s), "case {case}: {s:?}");
+        }
+    }
 }

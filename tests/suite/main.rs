@@ -37,6 +37,7 @@ mod models_fit_output;
 mod models_recovery;
 mod models_reference;
 mod parser_regressions;
+mod projection_cells;
 mod projection_cli;
 mod projection_cohort;
 mod projection_files;
