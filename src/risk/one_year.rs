@@ -24,8 +24,8 @@ use crate::data::Population;
 use crate::data::sex::sex_index;
 use crate::error::{Error, Result};
 use crate::models::{FittedModel, MortalityModel};
+use crate::projection::{CellPlan, RateSurface, ScenarioPaths};
 use crate::projection::{JointBasis, Projector, Purpose, Settings, Uncertainty, stream};
-use crate::projection::{RateSurface, ScenarioPaths};
 use crate::valuation::{PreparedBook, ScenarioValue, Workspace};
 
 /// What the re-calibration needs beyond the projector and the book.
@@ -61,6 +61,7 @@ pub fn one_year_values(
                 value: ScenarioValue::default(),
                 book: BookBuffers::default(),
                 hybrid: Vec::new(),
+                central_cells: None,
             },
             |buffers, scenario| {
                 projector.generate_years(scenario, &mut buffers.paths, years)?;
@@ -77,6 +78,8 @@ struct Buffers {
     value: ScenarioValue,
     book: BookBuffers,
     hybrid: Vec<Vec<f64>>,
+    /// The cells of the refitted central path that the book reads.
+    central_cells: Option<CellPlan>,
 }
 
 fn one_scenario(
@@ -92,6 +95,7 @@ fn one_scenario(
         value,
         book: book_buffers,
         hybrid,
+        central_cells,
     } = buffers;
     let basis = projector.basis();
     let settings = projector.settings();
@@ -130,7 +134,17 @@ fn one_scenario(
         },
         None,
     )?;
+    // Only the book's cohort diagonals after the valuation year are computed: the plan is
+    // the same for every refit (the refitted grid starts the year after the valuation).
+    let cells = central_cells.get_or_insert_with(|| {
+        let mut plan = central.no_cells();
+        for cohort in book.cohorts() {
+            plan.add_cohort(cohort.sex, cohort.age, book.year);
+        }
+        plan
+    });
     let mut refitted = central.buffer();
+    refitted.set_cells(cells);
     central.generate(0, &mut refitted)?;
     // Rates from the valuation year: the realised year, then the refitted best estimate.
     let ages = paths.ages().len();
