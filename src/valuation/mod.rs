@@ -1,6 +1,7 @@
 //! Book valuation: cash flows, annuity factors and truncated lifetimes per scenario.
 
 pub mod cohort;
+pub mod deaths;
 pub mod driver;
 pub mod files;
 pub mod lifetimes;
