@@ -2,6 +2,7 @@
 
 pub mod cells;
 pub mod cohort;
+pub mod deaths;
 pub mod driver;
 pub mod files;
 pub mod lifetimes;

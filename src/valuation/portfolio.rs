@@ -3,8 +3,9 @@
 //! Preparation groups policies into cohorts (shared survival curves) and shapes (shared
 //! payment schedules), so one scenario costs one curve per cohort, one short dot product per
 //! (cohort, shape) block for the expected value, and — with individual deaths simulated —
-//! one uniform draw, a guided table look-up and two array reads per life. Nothing in the
-//! per-scenario path allocates once the workspace has grown to size.
+//! one random word, a guided search of the curve and one payout read per life
+//! (`valuation::deaths`). Nothing in the per-scenario path allocates once the workspace has
+//! grown to size.
 
 use std::collections::HashMap;
 use std::path::Path;
@@ -17,18 +18,8 @@ use crate::data::{Book, Sex};
 use crate::error::{Error, Result};
 use crate::projection::RateSurface;
 use crate::valuation::cohort::{Cohort, LevelAdjustment, cohort_curve};
-use crate::valuation::schedule::{Basis, PaymentShape, Schedule};
-
-/// log2 of the buckets of the guide table that starts each death-time search near its
-/// answer. 256 buckets leave the forward scan under one step on average for a cohort with
-/// 60 years of deaths (32 left about two, each a likely branch miss); the table costs 512
-/// bytes per cohort and is rebuilt per scenario in O(buckets + years). Which bucket starts
-/// the scan never changes the death year it finds.
-const GUIDE_BITS: u32 = 8;
-/// Buckets of the guide table.
-const GUIDE_BUCKETS: usize = 1 << GUIDE_BITS;
-/// 2^−32: turns 32 random bits into a uniform on (0, 1).
-const UNIT_32: f64 = 1.0 / 4_294_967_296.0;
+use crate::valuation::deaths::{DeathSearch, DeathYear, simulate_lives};
+use crate::valuation::schedule::{Basis, PaymentShape, PayoutTable, Schedule};
 
 /// Policies with the same cohort and shape, amounts summed (amount × weight).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -85,6 +76,8 @@ struct Run {
     shape: u32,
     start: u32,
     end: u32,
+    /// Sum of the run's amounts, in order.
+    amount: f64,
 }
 
 /// Every (cohort, shape) block's schedule vectors, amount-weighted and summed per cohort:
@@ -141,6 +134,8 @@ pub struct PreparedBook {
     pub year: i32,
     cohorts: Vec<Cohort>,
     schedules: Vec<Schedule>,
+    /// Each schedule's payouts by death time, for the simulation.
+    payouts: Vec<PayoutTable>,
     /// The (cohort, shape) blocks, for the per-policy replay's expected values.
     blocks: Vec<Block>,
     /// Amount of each simulated life, grouped into `runs`.
@@ -177,10 +172,17 @@ pub struct ScenarioValue {
 pub struct Workspace {
     q: Vec<Vec<f64>>,
     survival: Vec<Vec<f64>>,
-    guide: Vec<[u16; GUIDE_BUCKETS]>,
-    dying: Vec<f64>,
-    partial: Vec<f64>,
+    searches: Vec<DeathSearch>,
+    by_year: Vec<DeathYear>,
+    /// Every entry of `by_year` is zero: the cash pass leaves it so, sparing the next
+    /// scenario a clearing pass.
+    by_year_zero: bool,
+    /// Random words of the lives being simulated.
+    words: Vec<[u8; 4]>,
 }
+
+/// Random words drawn in one call: 4 KB, in L1 while their lives are simulated.
+const WORDS_AT_ONCE: usize = 1024;
 
 impl PreparedBook {
     /// Prepares `book` for valuation at the start of `year` on `basis`, with rates for ages
@@ -293,16 +295,22 @@ impl PreparedBook {
                     shape: l.shape,
                     start: i as u32,
                     end: i as u32 + 1,
+                    amount: 0.0,
                 }),
             }
         }
-        let amounts = lives.iter().map(|l| l.amount).collect();
+        let amounts: Vec<f64> = lives.iter().map(|l| l.amount).collect();
+        for r in &mut runs {
+            r.amount = amounts[r.start as usize..r.end as usize].iter().sum();
+        }
+        let payouts = schedules.iter().map(Schedule::payouts).collect();
         let life_policy = lives.iter().map(|l| l.policy).collect();
         let expected = CohortSchedules::new(&blocks, &schedules, cohorts.len(), years);
         Ok(PreparedBook {
             year,
             cohorts,
             schedules,
+            payouts,
             blocks,
             amounts,
             runs,
@@ -459,11 +467,12 @@ impl PreparedBook {
     /// Draws each life's time of death from its cohort curve (UDD within the year, by
     /// inversion of one uniform) and adds up the payments it receives.
     ///
-    /// Draw order (a replay of one policy follows it): one `next_u32` of `rng` per life,
-    /// lives in the prepared order — sorted by (cohort, shape), each numbered in order of
-    /// first appearance in the book, policies in book order within a run, a policy of
-    /// weight w as round(w) (at least one) consecutive lives. This loop is the only place
-    /// a life's step is written.
+    /// Draw order (a replay of one policy follows it): one 32-bit word of `rng` per life,
+    /// in the order `next_u32` gives them (drawn by `fill_bytes` for up to
+    /// [`WORDS_AT_ONCE`] lives at a time: the same words), lives in the prepared order — sorted by (cohort, shape), each
+    /// numbered in order of first appearance in the book, policies in book order within a
+    /// run, a policy of weight w as round(w) (at least one) consecutive lives. The step of
+    /// one life is `deaths::simulate_lives`, and nowhere else.
     fn simulate<R: Rng, P: PolicySink>(
         &self,
         ws: &mut Workspace,
@@ -472,135 +481,78 @@ impl PreparedBook {
         policies: &mut P,
     ) {
         let n_shapes = self.schedules.len();
-        ws.guide.resize(self.cohorts.len(), [0; GUIDE_BUCKETS]);
-        for (c, s) in ws.survival.iter().enumerate().take(self.cohorts.len()) {
-            ws.guide[c] = guide_table(s);
+        ws.searches
+            .resize_with(self.cohorts.len(), DeathSearch::default);
+        for (search, s) in ws.searches.iter_mut().zip(&ws.survival) {
+            search.rebuild(s);
         }
-        ws.dying.clear();
-        ws.dying.resize(n_shapes * (self.years + 1), 0.0);
-        ws.partial.clear();
-        ws.partial.resize(n_shapes * (self.years + 1), 0.0);
         let stride = self.years + 1;
+        if ws.by_year.len() != n_shapes * stride || !ws.by_year_zero {
+            ws.by_year.clear();
+            ws.by_year.resize(n_shapes * stride, DeathYear::default());
+        }
+        ws.by_year_zero = false;
+        ws.words.resize(WORDS_AT_ONCE, [0; 4]);
+        let words = ws.words.as_mut_slice();
+        // Lives drawn..drawn_to have their words in `words`.
+        let (mut drawn, mut drawn_to) = (0, 0);
         let mut pv = 0.0;
         for run in &self.runs {
-            let s = ws.survival[run.cohort as usize].as_slice();
-            let guide = &ws.guide[run.cohort as usize];
             let sched = &self.schedules[run.shape as usize];
-            let lookup = sched.death_lookup();
+            let (search, payouts) = (
+                &ws.searches[run.cohort as usize],
+                &self.payouts[run.shape as usize],
+            );
             let row = run.shape as usize * stride;
-            let dying = &mut ws.dying[row..row + stride];
-            let partial = &mut ws.partial[row..row + stride];
-            let mut run_pv = 0.0;
+            let by_year = &mut ws.by_year[row..row + stride];
             let lives = run.start as usize..run.end as usize;
-            for (life, &amount) in lives.clone().zip(&self.amounts[lives.clone()]) {
-                // U in (0, 1) from 32 random bits; its top bits pick the guide bucket.
-                let bits = rng.next_u32();
-                let u = (f64::from(bits) + 0.5) * UNIT_32;
-                let mut k = guide[(bits >> (32 - GUIDE_BITS)) as usize] as usize;
-                // Death year K = max{k : S_k ≥ U}; S ends at 0 < U, so the scan stops.
-                while s[k + 1] >= u {
-                    k += 1;
+            let mut run_pv = 0.0;
+            let mut life = lives.start;
+            while life < lives.end {
+                if life == drawn_to {
+                    let n = WORDS_AT_ONCE.min(self.amounts.len() - life);
+                    rng.fill_bytes(words[..n].as_flattened_mut());
+                    (drawn, drawn_to) = (life, life + n);
                 }
-                // Under UDD the time of death within year K is linear in U.
-                let f = (s[k] - u) / (s[k] - s[k + 1]);
-                let paid = lookup.payments_before(k, f);
-                let life_pv = amount * lookup.pv_prefix[paid];
-                policies.life(life, life_pv);
-                run_pv += life_pv;
-                dying[k] += amount;
-                let year_start = lookup.year_start[k] as usize;
-                partial[k] += amount * (lookup.cash_prefix[paid] - lookup.cash_prefix[year_start]);
+                let end = lives.end.min(drawn_to);
+                run_pv = simulate_lives(
+                    search,
+                    payouts,
+                    by_year,
+                    &words[life - drawn..end - drawn],
+                    &self.amounts[life..end],
+                    run_pv,
+                    |i, life_pv| policies.life(life + i, life_pv),
+                );
+                life = end;
             }
-            let run_amount: f64 = self.amounts[run.start as usize..run.end as usize]
-                .iter()
-                .sum();
             policies.certain(lives, sched.certain_pv);
-            pv += run_pv + run_amount * sched.certain_pv;
+            pv += run_pv + run.amount * sched.certain_pv;
         }
         out.pv_simulated = pv;
         // Year k pays: guaranteed cash to all, full contingent cash to lives dying after
         // year k, and the part-year cash of lives dying in year k.
         out.cash_simulated.clear();
         out.cash_simulated.resize(self.years, 0.0);
+        // One pass per shape and year (about 170 × 70 a scenario in the bench book), so
+        // written as zipped slices: no bounds check inside.
         for (sh, sched) in self.schedules.iter().enumerate() {
-            let dying = &ws.dying[sh * stride..(sh + 1) * stride];
-            let partial = &ws.partial[sh * stride..(sh + 1) * stride];
-            let mut alive_after: f64 = dying.iter().sum();
-            for k in 0..self.years {
-                alive_after -= dying[k];
-                out.cash_simulated[k] += self.shape_amount[sh] * sched.certain_cash[k]
-                    + alive_after.max(0.0) * sched.cash_level[k]
-                    + partial[k];
+            let by_year = &mut ws.by_year[sh * stride..(sh + 1) * stride];
+            let mut alive_after: f64 = by_year.iter().map(|y| y.dying).sum();
+            let amount = self.shape_amount[sh];
+            for (((cash, year), &certain), &level) in out
+                .cash_simulated
+                .iter_mut()
+                .zip(by_year)
+                .zip(&sched.certain_cash)
+                .zip(&sched.cash_level)
+            {
+                let year = std::mem::take(year);
+                alive_after -= year.dying;
+                *cash += amount * certain + alive_after.max(0.0) * level + year.partial;
             }
         }
-    }
-}
-
-/// guide[b] = K((b + 1)/G) = max{k : S_k ≥ (b + 1)/G}: a lower bound on the death year of
-/// any U in bucket b, from which a short forward scan finds it.
-///
-/// Built per cohort and scenario, so by runs rather than bucket by bucket: S_k ≥ (b + 1)/G
-/// exactly when b < c_k = ⌊G S_k⌋ (G is a power of two, so G S_k is exact), and c_k does
-/// not increase with k, so year k is the answer for buckets c_{k+1} ≤ b < c_k.
-fn guide_table(survival: &[f64]) -> [u16; GUIDE_BUCKETS] {
-    let mut guide = [0u16; GUIDE_BUCKETS];
-    let bucket_end = |s: f64| ((s * GUIDE_BUCKETS as f64).floor() as usize).min(GUIDE_BUCKETS);
-    let mut end = survival.first().map_or(0, |&s| bucket_end(s));
-    for (k, &next) in survival.iter().skip(1).chain([&0.0]).enumerate() {
-        let start = bucket_end(next).min(end);
-        guide[start..end].fill(k as u16);
-        end = start;
-    }
-    guide
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    /// The table bucket by bucket: walk down from the previous bucket's answer.
-    fn guide_by_buckets(survival: &[f64]) -> [u16; GUIDE_BUCKETS] {
-        let mut guide = [0u16; GUIDE_BUCKETS];
-        let mut k = survival.len() - 1;
-        for (b, slot) in guide.iter_mut().enumerate() {
-            let threshold = (b + 1) as f64 / GUIDE_BUCKETS as f64;
-            while k > 0 && survival[k] < threshold {
-                k -= 1;
-            }
-            *slot = k as u16;
-        }
-        guide
-    }
-
-    #[test]
-    fn the_guide_built_by_runs_is_the_guide_built_by_buckets() {
-        use rand::{RngExt, SeedableRng};
-        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
-        for case in 0..500 {
-            let years = rng.random_range(1..80);
-            let mut s = vec![1.0];
-            for k in 0..years {
-                // Rates of 0 (ties), exact bucket edges, tiny and certain deaths.
-                let q: f64 = match rng.random_range(0..6) {
-                    0 => 0.0,
-                    1 => 1.0 / GUIDE_BUCKETS as f64,
-                    2 => 1e-9,
-                    _ => rng.random_range(0.0..0.3),
-                };
-                let last = s[k];
-                s.push(if k + 1 == years {
-                    0.0
-                } else {
-                    last * (1.0 - q)
-                });
-            }
-            if case % 7 == 0 {
-                // Survival exactly on the edges of buckets.
-                for (i, v) in s.iter_mut().enumerate().skip(1) {
-                    *v = ((GUIDE_BUCKETS - i.min(GUIDE_BUCKETS)) as f64) / GUIDE_BUCKETS as f64;
-                }
-            }
-            assert_eq!(guide_table(&s), guide_by_buckets(&s), "case {case}: {s:?}");
-        }
+        // The simulation writes years below `self.years` only, all taken above.
+        ws.by_year_zero = true;
     }
 }

@@ -167,23 +167,43 @@ impl Schedule {
     ///
     /// Deferral and term are whole years, so policy year k holds either no payment or all m
     /// of them, at k + j/m in advance or k + (j+1)/m in arrears; the count within the year
-    /// is then ⌈f m⌉ in advance and ⌈f m⌉ − 1 in arrears. This runs once per simulated life,
-    /// so it avoids both the payment times and `f64::ceil` (a library call on baseline
-    /// x86-64).
-    #[inline]
+    /// is then ⌈f m⌉ in advance and ⌈f m⌉ − 1 in arrears.
     pub fn payments_before(&self, k: usize, f: f64) -> usize {
-        self.death_lookup().payments_before(k, f)
+        let x = f * self.frequency;
+        let whole = x as i32;
+        self.payments_in_year(k, whole + i32::from(f64::from(whole) < x))
     }
 
-    /// The tables the simulation of deaths reads, borrowed once per run of lives.
-    #[inline]
-    pub fn death_lookup(&self) -> DeathLookup<'_> {
-        DeathLookup {
-            year_start: &self.year_start,
-            pv_prefix: &self.pv_prefix,
-            cash_prefix: &self.cash_prefix,
-            frequency: self.frequency,
-            arrears_offset: self.arrears_offset,
+    /// Payments made to a life dying in year k after ⌈f m⌉ = `ceil` of the year's 1/m
+    /// periods have begun (see [`Self::payments_before`]).
+    fn payments_in_year(&self, k: usize, ceil: i32) -> usize {
+        let start = self.year_start[k] as usize;
+        let in_year = self.year_start[k + 1] as usize - start;
+        start + ((ceil - self.arrears_offset).max(0) as usize).min(in_year)
+    }
+
+    /// What a life receives for each death time, by policy year k and ⌈f m⌉: the table the
+    /// simulation of deaths reads.
+    pub fn payouts(&self) -> PayoutTable {
+        // A schedule's frequency is a whole m ≥ 1 (`Schedule::new`).
+        let m = self.frequency as usize;
+        let periods = m + 1;
+        let mut entries = Vec::with_capacity(self.years * periods);
+        for k in 0..self.years {
+            let year_start = self.cash_prefix[self.year_start[k] as usize];
+            for ceil in 0..periods {
+                let paid = self.payments_in_year(k, ceil as i32);
+                entries.push(Payout {
+                    pv: self.pv_prefix[paid],
+                    cash_in_year: self.cash_prefix[paid] - year_start,
+                });
+            }
+        }
+        PayoutTable {
+            years: self.years,
+            periods,
+            frequency: m as f64,
+            entries,
         }
     }
 
@@ -200,36 +220,52 @@ impl Schedule {
     }
 }
 
-/// A schedule's death-time tables as plain slices. Held in locals for a run of lives, their
-/// pointers stay in registers: read through the schedule, they were reloaded after every
-/// store to the simulation's accumulators, which the compiler could not prove apart.
-#[derive(Debug, Clone, Copy)]
-pub struct DeathLookup<'a> {
-    /// See [`Schedule::year_start`].
-    pub year_start: &'a [u32],
-    /// See [`Schedule::pv_prefix`].
-    pub pv_prefix: &'a [f64],
-    /// See [`Schedule::cash_prefix`].
-    pub cash_prefix: &'a [f64],
-    /// Payments a year.
-    pub frequency: f64,
-    /// 1 in arrears, 0 in advance.
-    pub arrears_offset: i32,
+/// What a life dying at one time receives, per unit of its amount.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Payout {
+    /// Present value of the contingent payments made before death.
+    pub pv: f64,
+    /// Undiscounted contingent payments made in the year of death, before it.
+    pub cash_in_year: f64,
 }
 
-impl DeathLookup<'_> {
-    /// As [`Schedule::payments_before`].
-    #[inline]
-    pub fn payments_before(&self, k: usize, f: f64) -> usize {
-        let start = self.year_start[k] as usize;
-        let in_year = self.year_start[k + 1] as usize - start;
-        // i32 conversions are single instructions; usize ones are not before AVX-512.
-        let x = f * self.frequency;
-        let whole = x as i32;
-        let ceil = whole + i32::from(f64::from(whole) < x);
-        start + ((ceil - self.arrears_offset).max(0) as usize).min(in_year)
+/// A schedule's [`Payout`]s for every death time, by policy year k and c = ⌈f m⌉ in 0..=m:
+/// one read per simulated life where the payment count, its clamps and three prefix-sum
+/// reads were before.
+///
+/// Invariants (only [`Schedule::payouts`] builds one, and the simulation of deaths reads
+/// it unchecked): `entries` holds `years × periods` entries and `frequency` is the whole
+/// number `periods − 1`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PayoutTable {
+    years: usize,
+    periods: usize,
+    frequency: f64,
+    entries: Vec<Payout>,
+}
+
+impl PayoutTable {
+    /// Policy years covered.
+    pub fn years(&self) -> usize {
+        self.years
+    }
+
+    /// Entries per policy year, m + 1.
+    pub fn periods(&self) -> usize {
+        self.periods
+    }
+
+    /// Payments a year, m.
+    pub fn frequency(&self) -> f64 {
+        self.frequency
+    }
+
+    /// Entry k × `periods` + c: the payout of a death in year k with ⌈f m⌉ = c.
+    pub fn entries(&self) -> &[Payout] {
+        &self.entries
     }
 }
+
 /// (1 + e)^⌊t⌋: escalation applies from each whole year after the valuation date.
 fn escalation_factor(escalation: f64, t: f64) -> f64 {
     if escalation == 0.0 {
@@ -299,6 +335,46 @@ mod tests {
                             "{timing:?} d={deferral} k={k} f={f}"
                         );
                     }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn payouts_are_the_prefix_sums_of_the_payments_before_death() {
+        // Brute force: for deaths at k + f with ⌈f m⌉ = c, the entry holds the PV of the
+        // payment times before death and the cash of those in year k, summed directly.
+        for timing in [Timing::Advance, Timing::Arrears] {
+            let b = basis(timing, 4, 0.03);
+            let s = Schedule::new(&shape(2, Some(5), 1, 0.02), &b, 10);
+            let table = s.payouts();
+            assert_eq!(table.entries.len(), 10 * 5);
+            let offset = if timing == Timing::Arrears { 1.0 } else { 0.0 };
+            for k in 0..10 {
+                for c in 0..=4 {
+                    // Death at k + c/m receives the payments due before it; at f = 0
+                    // (c = 0), those of the earlier policy years.
+                    let death = k as f64 + c as f64 / 4.0;
+                    let (mut pv, mut cash) = (0.0, 0.0);
+                    for j in 0..s.pv_prefix.len() - 1 {
+                        let t = 2.0 + (j as f64 + offset) / 4.0;
+                        let year = (t - offset / 4.0).floor();
+                        let before = if c == 0 { year < k as f64 } else { t < death };
+                        // Guaranteed: the first year of payments (j < 4) is certain.
+                        if before && j >= 4 {
+                            let amount = 1.02f64.powi(t.floor() as i32) / 4.0;
+                            pv += amount * 1.03f64.powf(-t);
+                            if year == k as f64 {
+                                cash += amount;
+                            }
+                        }
+                    }
+                    let e = table.entries[k * 5 + c];
+                    assert!((e.pv - pv).abs() < 1e-12, "{timing:?} k={k} c={c}");
+                    assert!(
+                        (e.cash_in_year - cash).abs() < 1e-12,
+                        "{timing:?} k={k} c={c}"
+                    );
                 }
             }
         }
