@@ -174,16 +174,7 @@ fn spread_fan(rates: &BookRates, paths: &[Vec<f64>], first_year: i32) -> FanChar
         .map(|h| {
             let column = sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>());
             let q = FAN_PROBABILITIES.map(|p| quantile_sorted(&column, p));
-            FanPoint {
-                year: first_year + h as i32,
-                q005: q[0],
-                q050: q[1],
-                q250: q[2],
-                q500: q[3],
-                q750: q[4],
-                q950: q[5],
-                q995: q[6],
-            }
+            FanPoint::from_quantiles(first_year + h as i32, q)
         })
         .collect();
     FanChart {
