@@ -101,17 +101,21 @@ pub fn gather(
             paths.push(draw.spread.clone());
         }
         let first = draw.first_year;
+        // Each projected year's spreads over the scenarios, sorted once for the chart and
+        // the table.
         let years = paths.first().map_or(0, Vec::len);
-        for h in (0..years).step_by(FAN_STEP_YEARS as usize) {
-            let column = sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>());
+        let columns: Vec<Vec<f64>> = (0..years)
+            .map(|h| sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>()))
+            .collect();
+        for (h, column) in columns.iter().enumerate().step_by(FAN_STEP_YEARS as usize) {
             fan.push(SpreadQuantiles {
                 year: first + h as i32,
-                p05: quantile_sorted(&column, 0.05),
-                p50: quantile_sorted(&column, 0.5),
-                p95: quantile_sorted(&column, 0.95),
+                p05: quantile_sorted(column, 0.05),
+                p50: quantile_sorted(column, 0.5),
+                p95: quantile_sorted(column, 0.95),
             });
         }
-        spread_chart = Some(spread_fan(rates, &paths, first));
+        spread_chart = Some(spread_fan(rates, &columns, first));
     }
     BookBasisReport {
         level: d.level,
@@ -143,8 +147,8 @@ pub fn gather(
 
 /// The fan of the spread: its fitted values from the book's experience (the relative
 /// model's κ̂_t, or Li–Lee's k_t of the book population, first sex) and every projected
-/// year's quantiles over `paths` (each from `first_year` on).
-fn spread_fan(rates: &BookRates, paths: &[Vec<f64>], first_year: i32) -> FanChart {
+/// year's quantiles from `columns` (each year's sorted spreads, from `first_year` on).
+fn spread_fan(rates: &BookRates, columns: &[Vec<f64>], first_year: i32) -> FanChart {
     let (li_lee, sex, history) = match rates.li_lee_fits().and_then(|f| f.first()) {
         Some(fit) => (
             true,
@@ -169,11 +173,11 @@ fn spread_fan(rates: &BookRates, paths: &[Vec<f64>], first_year: i32) -> FanChar
             )
         }
     };
-    let years = paths.first().map_or(0, Vec::len);
-    let projection = (0..years)
-        .map(|h| {
-            let column = sorted(&paths.iter().map(|p| p[h]).collect::<Vec<_>>());
-            let q = FAN_PROBABILITIES.map(|p| quantile_sorted(&column, p));
+    let projection = columns
+        .iter()
+        .enumerate()
+        .map(|(h, column)| {
+            let q = FAN_PROBABILITIES.map(|p| quantile_sorted(column, p));
             FanPoint::from_quantiles(first_year + h as i32, q)
         })
         .collect();
