@@ -18,8 +18,11 @@ use crate::valuation::schedule::PayoutTable;
 const GUIDE_BITS: u32 = 8;
 /// Buckets of the guide table.
 const GUIDE_BUCKETS: usize = 1 << GUIDE_BITS;
+/// 2^32: the tables the step reads are kept in units of 2^−32, so a word's bits need no
+/// scaling (the scaling is exact, see [`DeathSearch`]).
+const WORD_SCALE: f64 = 4_294_967_296.0;
 /// 2^−32: turns 32 random bits into a uniform on (0, 1).
-const UNIT_32: f64 = 1.0 / 4_294_967_296.0;
+const UNIT_32: f64 = 1.0 / WORD_SCALE;
 /// The least uniform drawn, 2^−33: a survival below it is never reached.
 const LEAST_U: f64 = 0.5 * UNIT_32;
 /// The greatest uniform drawn, 1 − 2^−33.
@@ -27,18 +30,25 @@ const GREATEST_U: f64 = 1.0 - LEAST_U;
 
 /// One cohort's survival curve ready for the death-time search in one scenario.
 ///
-/// Invariants (set by [`Self::rebuild`], relied on by [`simulate_lives`]): `survival`
-/// holds n + 1 ≥ 2 values in [0, 1] with S_0 ≥ the greatest uniform and S_n below the
-/// least; `drop` holds the n differences S_k − S_k+1; every guide entry g of bucket b
-/// is at most n − 1 with S_g ≥ (b + 1)/G or g = 0.
+/// The curve is stored in the units of the random words: T_k = 2^32 S_k − 1/2 against a
+/// word's bits w, since U = (w + 1/2)/2^32, so S_k ≥ U exactly when T_k ≥ w, and
+/// (S_k − U)/(S_k − S_k+1) = (T_k − w)/(2^32 (S_k − S_k+1)) to the bit: scaling by a power
+/// of two is exact, and 2^32 S_k − 1/2 is exact for every S_k ≥ 2^−33 (Sterbenz), the
+/// only values the fraction reads (a smaller S_k gives T_k < 0 ≤ w, as S_k < U did).
+///
+/// Invariants (set by [`Self::rebuild`], relied on by [`simulate_lives`]): the curve S
+/// has n + 1 ≥ 2 values in [0, 1] with S_0 ≥ the greatest uniform and S_n below the
+/// least; `threshold` holds T_0 ..= T_n and `drop` the n values 2^32 (S_k − S_k+1); every
+/// guide entry g of bucket b is at most n − 1 with S_g ≥ (b + 1)/G or g = 0.
 #[derive(Debug, Clone)]
 pub struct DeathSearch {
     /// guide[b] = K((b + 1)/G) = max{k : S_k ≥ (b + 1)/G}: a lower bound on the death
     /// year of any U in bucket b, from which a short forward scan finds it.
     guide: [u32; GUIDE_BUCKETS],
-    /// S_0 ..= S_n.
-    survival: Vec<f64>,
-    /// S_k − S_k+1, k < n: the UDD fraction's denominator, once per year not per life.
+    /// T_k = 2^32 S_k − 1/2, k = 0 ..= n.
+    threshold: Vec<f64>,
+    /// 2^32 (S_k − S_k+1), k < n: the UDD fraction's denominator, once per year not per
+    /// life.
     drop: Vec<f64>,
 }
 
@@ -46,7 +56,7 @@ impl Default for DeathSearch {
     fn default() -> Self {
         DeathSearch {
             guide: [0; GUIDE_BUCKETS],
-            survival: Vec::new(),
+            threshold: Vec::new(),
             drop: Vec::new(),
         }
     }
@@ -60,7 +70,7 @@ impl DeathSearch {
     /// into that form rather than read out of bounds: the figures are then meaningless, as
     /// they would be anyway, but memory stays safe.
     pub fn rebuild(&mut self, survival: &[f64]) {
-        let s = &mut self.survival;
+        let s = &mut self.threshold;
         s.clear();
         s.extend(
             survival
@@ -78,7 +88,8 @@ impl DeathSearch {
             s[n] = 0.0;
         }
         self.drop.clear();
-        self.drop.extend(s.windows(2).map(|w| w[0] - w[1]));
+        self.drop
+            .extend(s.windows(2).map(|w| (w[0] - w[1]) * WORD_SCALE));
         // S_k ≥ (b + 1)/G exactly for the buckets b below ⌊G S_k⌋ (G S_k is exact), so
         // year k is the answer for the buckets from ⌊G S_k+1⌋ (0 for the last year) up to
         // there: one pass down the years and one store per bucket.
@@ -91,6 +102,9 @@ impl DeathSearch {
                 self.guide[from..to].fill(k as u32);
             }
             from = to;
+        }
+        for t in s.iter_mut() {
+            *t = *t * WORD_SCALE - 0.5;
         }
     }
 
@@ -116,7 +130,8 @@ pub struct DeathYear {
 /// `by_year[K]`.
 ///
 /// U = (bits + 0.5) / 2^32; K = max{k : S_k ≥ U}; f = (S_K − U)/(S_K − S_K+1) (UDD within
-/// the year).
+/// the year), computed as (T_K − bits)/(2^32 (S_K − S_K+1)) with the same bits (see
+/// [`DeathSearch`]).
 #[inline(always)]
 pub fn simulate_lives(
     search: &DeathSearch,
@@ -179,30 +194,31 @@ unsafe fn lives<const ROUND: bool>(
     mut each: impl FnMut(usize, f64),
 ) -> f64 {
     let n = search.years();
-    let (survival, drop, guide) = (&search.survival[..=n], &search.drop[..n], &search.guide);
+    let (threshold, drop, guide) = (&search.threshold[..=n], &search.drop[..n], &search.guide);
     let (entries, periods, m) = (payouts.entries(), payouts.periods(), payouts.frequency());
     let mut step = |i: usize, word: [u8; 4], amount: f64| {
         let bits = u32::from_le_bytes(word);
-        let u = (f64::from(bits) + 0.5) * UNIT_32;
+        // The word in the tables' units: U = (w + 1/2)/2^32 is compared as T_k ≥ w.
+        let w = f64::from(bits);
         let mut k = guide[(bits >> (32 - GUIDE_BITS)) as usize] as usize;
         // SAFETY: by `DeathSearch`'s invariants, k ≤ n − 1 and S_k ≥ U to start with (U
         // lies below its bucket's upper edge (b + 1)/G, and S_0 above every U); the scan
-        // steps only while S_k+1 ≥ U, and S_n < U, so it stops at a K ≤ n − 1 with
-        // S_K ≥ U > S_K+1: every survival index is at most n, every drop index below n.
-        // With S in [0, 1], rounding keeps 0 ≤ S_K − U ≤ S_K − S_K+1, the latter positive,
+        // steps only while S_k+1 ≥ U (T_k+1 ≥ w), and S_n < U, so it stops at a K ≤ n − 1
+        // with S_K ≥ U > S_K+1: every threshold index is at most n, every drop index below
+        // n. With S in [0, 1], rounding keeps 0 ≤ S_K − U ≤ S_K − S_K+1, the latter positive,
         // so f lies in [0, 1] and x = f m in [0, m] (finite, within i64); c = ⌈x⌉ ≤ m =
         // periods − 1, so the entry index is below n × periods ≤ entries.len() (the
         // table's invariants), and K below by_year.len() (the function's contract).
         let (payout, year) = unsafe {
             // Written as a test before the loop, the rare steps (about one life in
             // twenty) keep the year's index arithmetic out of the common path.
-            if *survival.get_unchecked(k + 1) >= u {
+            if *threshold.get_unchecked(k + 1) >= w {
                 k += 1;
-                while *survival.get_unchecked(k + 1) >= u {
+                while *threshold.get_unchecked(k + 1) >= w {
                     k += 1;
                 }
             }
-            let f = (*survival.get_unchecked(k) - u) / *drop.get_unchecked(k);
+            let f = (*threshold.get_unchecked(k) - w) / *drop.get_unchecked(k);
             let x = f * m;
             let c: i64 = if ROUND {
                 x.ceil().to_int_unchecked()
@@ -350,10 +366,49 @@ mod tests {
     }
 
     #[test]
+    fn thresholds_give_the_plain_uniforms_year_and_fraction_to_the_bit() {
+        // The claim of `DeathSearch`'s units, checked against the plain formulas on a curve
+        // with values near 2^−33, neighbours one ulp apart and a subnormal tail, for words
+        // at, next to and between its points.
+        let mut survival = vec![1.0, 1.0 - f64::EPSILON, 0.7, 0.7 - 1e-16, 0.3, 1e-3];
+        survival.extend([
+            LEAST_U * 3.0,
+            LEAST_U * 1.5,
+            LEAST_U,
+            LEAST_U * 0.99,
+            1e-310,
+        ]);
+        survival.push(0.0);
+        let mut search = DeathSearch::default();
+        search.rebuild(&survival);
+        let mut words: Vec<u32> = (0..=u32::MAX).step_by(65_537).collect();
+        for s in &survival {
+            let w = (s * WORD_SCALE).min(4_294_967_295.0) as u32;
+            words.extend([w.saturating_sub(1), w, w.saturating_add(1)]);
+        }
+        words.extend([0, 1, 2, u32::MAX - 1, u32::MAX]);
+        for bits in words {
+            let u = (f64::from(bits) + 0.5) * UNIT_32;
+            let k = (0..survival.len() - 1)
+                .find(|&k| survival[k + 1] < u)
+                .unwrap();
+            let f = (survival[k] - u) / (survival[k] - survival[k + 1]);
+            let w = f64::from(bits);
+            let k_scaled = (0..survival.len() - 1)
+                .find(|&k| search.threshold[k + 1] < w)
+                .unwrap();
+            assert_eq!(k_scaled, k, "bits {bits}");
+            let f_scaled = (search.threshold[k] - w) / search.drop[k];
+            assert_eq!(f_scaled.to_bits(), f.to_bits(), "bits {bits}");
+        }
+    }
+
+    #[test]
     fn broken_curves_are_kept_in_bounds() {
         let mut search = DeathSearch::default();
         search.rebuild(&[f64::NAN, 2.0, -1.0, 0.5]);
-        assert_eq!(search.survival, [1.0, 1.0, 0.0, 0.0]);
+        let top = WORD_SCALE - 0.5;
+        assert_eq!(search.threshold, [top, top, -0.5, -0.5]);
         assert!(search.guide.iter().all(|&g| (g as usize) < search.years()));
     }
 }
