@@ -133,7 +133,7 @@ impl ValuationSetup {
             Error::Config { key, rule, .. } => Error::config(&config.file, key, rule),
             other => other,
         })?;
-        let lifetimes = LifetimeTable::new(
+        let mut lifetimes = LifetimeTable::new(
             &book,
             &config.valuation.horizons,
             &basis,
@@ -142,6 +142,7 @@ impl ValuationSetup {
             year,
             ages.last,
         );
+        lifetimes.share_curves(&prepared);
         Ok(ValuationSetup {
             book,
             prepared,

@@ -87,13 +87,41 @@ pub fn cohort_curve(
     q.resize(years, 1.0);
     survival.clear();
     survival.resize(years + 1, 1.0);
+    // One pass: q from its diagonal cell (each row of `stride` starts with it) and the
+    // book's level at its age, then the survival to the next year.
+    let stride = surface.ages + 1;
+    let sex = sex_index(cohort.sex);
+    let from = usize::try_from(cohort.age - level.first_age).ok();
+    let levels = from.and_then(|from| level.factors[sex].get(from..from + rated));
     let mut alive = 1.0;
-    let rates = diagonal.iter().step_by(surface.ages + 1);
-    for (k, (rate, &base)) in q[..rated].iter_mut().zip(rates).enumerate() {
-        let age = cohort.age + k as i32;
-        *rate = (base * scale * cohort.factor * level.factor(cohort.sex, age)).min(1.0);
+    let mut step = |rate: &mut f64, s: &mut f64, base: f64, factor: f64| {
+        *rate = (base * scale * cohort.factor * factor).min(1.0);
+        alive *= 1.0 - *rate;
+        *s = alive;
+    };
+    let cells = q[..rated]
+        .iter_mut()
+        .zip(&mut survival[1..=rated])
+        .zip(diagonal.chunks(stride));
+    match levels {
+        Some(levels) => {
+            for (((rate, s), row), &factor) in cells.zip(levels) {
+                step(rate, s, row[0], factor);
+            }
+        }
+        None => {
+            for (k, ((rate, s), row)) in cells.enumerate() {
+                step(
+                    rate,
+                    s,
+                    row[0],
+                    level.factor(cohort.sex, cohort.age + k as i32),
+                );
+            }
+        }
     }
-    for (s, &rate) in survival[1..].iter_mut().zip(q.iter()) {
+    // The year at max_age: q = 1.
+    for (s, &rate) in survival[rated + 1..].iter_mut().zip(&q[rated..]) {
         alive *= 1.0 - rate;
         *s = alive;
     }

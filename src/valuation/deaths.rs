@@ -87,24 +87,27 @@ impl DeathSearch {
         if s[n] >= LEAST_U {
             s[n] = 0.0;
         }
+        // One pass down the years: the drop, the guide's buckets and the threshold of
+        // year k. S_k ≥ (b + 1)/G exactly for the buckets b below ⌊G S_k⌋ (G S_k is
+        // exact), so year k is the answer for the buckets from ⌊G S_k+1⌋ (0 for the last
+        // year) up to there: one store per bucket.
         self.drop.clear();
-        self.drop
-            .extend(s.windows(2).map(|w| (w[0] - w[1]) * WORD_SCALE));
-        // S_k ≥ (b + 1)/G exactly for the buckets b below ⌊G S_k⌋ (G S_k is exact), so
-        // year k is the answer for the buckets from ⌊G S_k+1⌋ (0 for the last year) up to
-        // there: one pass down the years and one store per bucket.
+        self.drop.resize(n, 0.0);
         self.guide = [0; GUIDE_BUCKETS];
         let mut from = 0;
-        for k in (0..n).rev() {
+        let mut below = s[n];
+        s[n] = below * WORD_SCALE - 0.5;
+        for (k, (t, d)) in s[..n].iter_mut().zip(&mut self.drop).enumerate().rev() {
+            let here = *t;
+            *d = (here - below) * WORD_SCALE;
             // S_k in [0, 1]: at most G.
-            let to = (s[k] * GUIDE_BUCKETS as f64) as i32 as usize;
+            let to = (here * GUIDE_BUCKETS as f64) as i32 as usize;
             if from < to {
                 self.guide[from..to].fill(k as u32);
             }
             from = to;
-        }
-        for t in s.iter_mut() {
-            *t = *t * WORD_SCALE - 0.5;
+            *t = here * WORD_SCALE - 0.5;
+            below = here;
         }
     }
 

@@ -152,7 +152,17 @@ fn value_one(
     )?;
     if let Some(table) = lifetimes {
         let surfaces = buffers.paths.surfaces();
-        table.compute(&surfaces, &mut buffers.lifetimes, &mut result.lifetimes)?;
+        // The book's curves are the population's unless it has rates of its own.
+        let shared = settings
+            .book_rates
+            .is_none()
+            .then_some((book, &buffers.book));
+        table.compute(
+            &surfaces,
+            shared,
+            &mut buffers.lifetimes,
+            &mut result.lifetimes,
+        )?;
     }
     if let (true, Some(rates)) = (settings.index_cash, settings.book_rates) {
         let fixed = Uncertainty {

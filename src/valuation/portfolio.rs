@@ -412,6 +412,16 @@ impl PreparedBook {
         &ws.survival[c]
     }
 
+    /// Cohort `c`'s rates `q` and survival curve built by the last [`Self::build_curves`].
+    pub fn curve<'w>(&self, ws: &'w Workspace, c: usize) -> (&'w [f64], &'w [f64]) {
+        (&ws.q[c], &ws.survival[c])
+    }
+
+    /// The multipliers of the population q by sex and attained age.
+    pub fn level(&self) -> &LevelAdjustment {
+        &self.level
+    }
+
     /// Values the book in one scenario whose curves are in `ws`; simulates individual deaths
     /// with `rng` when given.
     pub fn value<R: Rng>(&self, ws: &mut Workspace, rng: Option<&mut R>, out: &mut ScenarioValue) {

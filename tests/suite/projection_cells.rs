@@ -221,7 +221,7 @@ fn a_book_valued_on_its_cells_gives_the_whole_grids_figures() {
         assert_eq!(r.value.cash_simulated, value.cash_simulated);
         let mut rows = Vec::new();
         lifetimes
-            .compute(&paths.surfaces(), &mut lifetime_ws, &mut rows)
+            .compute(&paths.surfaces(), None, &mut lifetime_ws, &mut rows)
             .unwrap();
         assert_eq!(r.lifetimes, rows);
         let charted = r.scenario < 3;

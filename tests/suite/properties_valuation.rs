@@ -235,7 +235,7 @@ proptest! {
         horizons in prop::collection::vec(1usize..25, 0..4),
         fractional in prop_oneof![Just(Fractional::Udd), Just(Fractional::ConstantForce)],
     ) {
-        let table = LifetimeTable::new(
+        let mut table = LifetimeTable::new(
             &book,
             &horizons,
             &basis(Timing::Advance, 1, 0.03),
@@ -245,8 +245,18 @@ proptest! {
             MAX_AGE,
         );
         let mut rows = Vec::new();
-        table.compute(&rates.surfaces(), &mut LifetimeWorkspace::default(), &mut rows).unwrap();
+        let surfaces = rates.surfaces();
+        table.compute(&surfaces, None, &mut LifetimeWorkspace::default(), &mut rows).unwrap();
         prop_assert_eq!(rows.len(), table.rows_per_scenario());
+        // Read off the book's curves where it has the cohort, the same rows to the bit.
+        let prepared = prepare(&book, &basis(Timing::Advance, 1, 0.03));
+        let mut ws = Workspace::default();
+        prepared.build_curves(&surfaces, &mut ws).unwrap();
+        table.share_curves(&prepared);
+        let mut shared = Vec::new();
+        let book_curves = Some((&prepared, &ws));
+        table.compute(&surfaces, book_curves, &mut LifetimeWorkspace::default(), &mut shared).unwrap();
+        prop_assert_eq!(&shared, &rows);
         for r in &rows {
             let n = f64::from(r.horizon);
             let slack = TOL * n;

@@ -64,6 +64,7 @@ fn rows(
     table
         .compute(
             &[None, Some(surface)],
+            None,
             &mut LifetimeWorkspace::default(),
             &mut out,
         )
