@@ -10,6 +10,12 @@
 //!   cohort of the demo book, so nearly all of it is the fixed part; the 100,000-policy
 //!   book adds its per-life loop (`--bench valuation`) to this.
 //!
+//! - `value-bench-book` and `book-bench-book`: on the 100,000-policy bench book
+//!   (`tailspan synth --policies 100000`), `tailspan value`'s whole per-scenario work,
+//!   files included, and the book's valuation alone on the same scenarios' rates (cohort
+//!   curves, death-search tables, simulated lives, expected and cash passes). The first
+//!   less the second is that book's per-scenario fixed cost: rates, lifetimes, files.
+//!
 //! Criterion reports time per scenario (`Throughput::Elements`).
 
 use std::hint::black_box;
@@ -20,10 +26,13 @@ use tailspan::data::{Book, Config, Experience};
 use tailspan::io::Provenance;
 use tailspan::pipeline::{ProjectedFits, ValuationSetup, ValueRequest, value_book};
 use tailspan::projection::engine::ROW_GROUP_ROWS;
-use tailspan::projection::{OutputOptions, Projector};
-use tailspan::valuation::{Extracts, ScenarioCells};
+use tailspan::projection::{OutputOptions, Projector, Purpose, stream};
+use tailspan::valuation::{Extracts, ScenarioCells, ScenarioValue, Workspace};
 
 const SCENARIOS: u64 = 200;
+/// Scenarios of the bench book per iteration: enough that a call's own setup (opening
+/// and closing the files) is a small part of each.
+const BENCH_BOOK_SCENARIOS: u64 = 200;
 
 fn demo() -> (Config, Experience, Book, Projector) {
     let config = Config::load(&Path::new(env!("CARGO_MANIFEST_DIR")).join("configs/demo.toml"))
@@ -114,6 +123,61 @@ fn bench(c: &mut Criterion) {
                     value_book(&config, &small, &projector, &request, &|_| {}).expect("value");
                 black_box((outcome.stochastic, files.len()))
             })
+        })
+    });
+    group.finish();
+
+    let mut group = c.benchmark_group("fixed_cost");
+    group.sample_size(10);
+    group.throughput(Throughput::Elements(BENCH_BOOK_SCENARIOS));
+    let bench_book =
+        tailspan::synth::book(tailspan::synth::DEFAULT_SEED, 100_000).expect("the bench book");
+    let large = ValuationSetup::new(&config, bench_book, &projector).expect("valuation setup");
+    let ids = 1..BENCH_BOOK_SCENARIOS + 1;
+    group.bench_function("value-bench-book", |b| {
+        b.iter(|| {
+            one_thread.install(|| {
+                let request = ValueRequest {
+                    ids: ids.clone(),
+                    options: &options,
+                    hedges: None,
+                    report: false,
+                    extracts: &extracts,
+                };
+                let (outcome, files) =
+                    value_book(&config, &large, &projector, &request, &|_| {}).expect("value");
+                black_box((outcome.stochastic, files.len()))
+            })
+        })
+    });
+    let cells = ScenarioCells::new(
+        &projector,
+        &large.prepared,
+        Some(&large.lifetimes),
+        &extracts,
+    );
+    let paths: Vec<_> = ids
+        .clone()
+        .map(|s| {
+            let mut buf = projector.buffer();
+            buf.set_cells(cells.of(s));
+            projector.generate(s, &mut buf).expect("scenario");
+            (s, buf)
+        })
+        .collect();
+    let mut ws = Workspace::default();
+    let mut out = ScenarioValue::default();
+    group.bench_function("book-bench-book", |b| {
+        b.iter(|| {
+            for (s, buf) in &paths {
+                large
+                    .prepared
+                    .build_curves(&buf.surfaces(), &mut ws)
+                    .expect("curves");
+                let mut rng = stream(config.projection.seed, *s, Purpose::Deaths);
+                large.prepared.value(&mut ws, Some(&mut rng), &mut out);
+            }
+            black_box(out.pv_simulated)
         })
     });
     group.finish();

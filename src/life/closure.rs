@@ -10,6 +10,19 @@
 
 use std::ops::Range;
 
+use crate::life::exp::{exp, exp_in_place, q_from_force, q_from_force_in_place};
+
+/// e^η / (1 + e^η) given e = e^−|η|: written so that large |η| neither overflows nor
+/// loses the small tail.
+#[inline(always)]
+fn logistic(eta: f64, e: f64) -> f64 {
+    if eta >= 0.0 {
+        1.0 / (1.0 + e)
+    } else {
+        e / (1.0 + e)
+    }
+}
+
 /// A central rate at or above 1 has no logit; it is capped just below 1 for the fit.
 const MAX_FIT_RATE: f64 = 1.0 - 1e-12;
 
@@ -37,12 +50,19 @@ impl Kannisto {
     /// Force of mortality μ(x).
     pub fn force(&self, age: f64) -> f64 {
         let eta = self.alpha + self.beta * age;
-        // Written so that large |eta| neither overflows nor loses the small tail.
-        if eta >= 0.0 {
-            1.0 / (1.0 + (-eta).exp())
-        } else {
-            let e = eta.exp();
-            e / (1.0 + e)
+        logistic(eta, exp(-eta.abs()))
+    }
+
+    /// μ at ages `first_age`, `first_age` + 1, ... into `out`, each as [`Self::force`]
+    /// gives it, in two passes a loop vectorises.
+    pub fn forces(&self, first_age: f64, out: &mut [f64]) {
+        let eta = |i: usize| self.alpha + self.beta * (first_age + i as f64);
+        for (i, o) in out.iter_mut().enumerate() {
+            *o = -eta(i).abs();
+        }
+        exp_in_place(out);
+        for (i, o) in out.iter_mut().enumerate() {
+            *o = logistic(eta(i), *o);
         }
     }
 
@@ -158,26 +178,19 @@ impl KannistoClosure {
             // A top rate of zero (no deaths anywhere near the top): nothing to extend,
             // so the last fitted rate is held.
             let top = &out[fitted - k..fitted];
-            Some(Kannisto::fit(top_first, top).ok_or_else(|| -(-out[fitted - 1]).exp_m1()))
+            Some(Kannisto::fit(top_first, top).ok_or_else(|| q_from_force(out[fitted - 1])))
         };
         // The central cells below `cells` were taken for the law only.
         let central = self.central_cells(first_age, fitted, cells.clone());
         let split = cells.start.clamp(central.start, central.end);
         out[central.start..split].fill(f64::NAN);
-        for q in out[split..central.end].iter_mut() {
-            *q = -(-*q).exp_m1();
-        }
+        q_from_force_in_place(&mut out[split..central.end]);
         match law {
             Some(Ok(law)) => {
-                for (i, q) in out
-                    .iter_mut()
-                    .enumerate()
-                    .take(closed.end)
-                    .skip(closed.start)
-                {
-                    let age = f64::from(first_age) + i as f64;
-                    *q = -(-law.force(age)).exp_m1();
-                }
+                // Ages are whole numbers: first_age + start + j is exact either way.
+                let from = f64::from(first_age) + closed.start as f64;
+                law.forces(from, &mut out[closed.clone()]);
+                q_from_force_in_place(&mut out[closed]);
             }
             Some(Err(hold)) => out[closed].fill(hold),
             None => {}
@@ -191,6 +204,24 @@ impl KannistoClosure {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn forces_in_a_row_are_each_ages_force() {
+        // η = ln a + b x crosses 0 inside the row, where the formula switches.
+        let law = Kannisto::new(2e-5, 0.11);
+        let mut row = vec![0.0; 70];
+        law.forces(60.0, &mut row);
+        for (i, &mu) in row.iter().enumerate() {
+            let age = 60.0 + i as f64;
+            assert_eq!(mu.to_bits(), law.force(age).to_bits(), "{age}");
+            // μ = a e^{bx} / (1 + a e^{bx}) (Kannisto's law, closed form).
+            let odds = 2e-5 * (0.11 * age).exp();
+            assert!(
+                (mu - odds / (1.0 + odds)).abs() <= 4e-16 * mu.max(1e-300),
+                "{age}"
+            );
+        }
+    }
 
     #[test]
     fn two_point_fit_is_exact() {

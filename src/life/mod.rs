@@ -8,6 +8,7 @@
 
 pub mod annuity;
 pub mod closure;
+pub mod exp;
 pub mod fractional;
 pub mod laws;
 pub mod table;

@@ -323,9 +323,11 @@ impl FittedModel for LeeCarterFit {
             &self.ax.as_slice()[central.clone()],
             &self.bx.as_slice()[central.clone()],
         );
-        for ((m, a), b) in out[central].iter_mut().zip(ax).zip(bx) {
-            *m = (a + b * k).exp();
+        let log_rates = &mut out[central];
+        for ((m, a), b) in log_rates.iter_mut().zip(ax).zip(bx) {
+            *m = a + b * k;
         }
+        crate::life::exp::exp_in_place(log_rates);
         self.basis.closure.close_cells(first, n, cells, out);
     }
 

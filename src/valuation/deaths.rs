@@ -37,8 +37,8 @@ const GREATEST_U: f64 = 1.0 - LEAST_U;
 /// only values the fraction reads (a smaller S_k gives T_k < 0 ≤ w, as S_k < U did).
 ///
 /// Invariants (set by [`Self::rebuild`], relied on by [`simulate_lives`]): the curve S
-/// has n + 1 ≥ 2 values in [0, 1] with S_0 ≥ the greatest uniform and S_n below the
-/// least; `threshold` holds T_0 ..= T_n and `drop` the n values 2^32 (S_k − S_k+1); every
+/// has n + 1 ≥ 2 non-increasing values in [0, 1] with S_0 ≥ the greatest uniform and S_n
+/// below the least; `threshold` holds T_0 ..= T_n and `drop` the n values 2^32 (S_k − S_k+1); every
 /// guide entry g of bucket b is at most n − 1 with S_g ≥ (b + 1)/G or g = 0.
 #[derive(Debug, Clone)]
 pub struct DeathSearch {
@@ -65,49 +65,55 @@ impl Default for DeathSearch {
 impl DeathSearch {
     /// Prepares the search on the curve `survival` = S_0 ..= S_n.
     ///
-    /// A cohort curve starts at 1, ends at 0 (q = 1 at the table's last age) and stays in
-    /// [0, 1], and is then taken as it is. Anything else (a NaN from broken rates) is forced
+    /// A cohort curve starts at 1, ends at 0 (q = 1 at the table's last age), never rises
+    /// and stays in [0, 1], and is then taken as it is. Anything else (a NaN from broken rates) is forced
     /// into that form rather than read out of bounds: the figures are then meaningless, as
     /// they would be anyway, but memory stays safe.
     pub fn rebuild(&mut self, survival: &[f64]) {
-        let s = &mut self.threshold;
-        s.clear();
-        s.extend(
-            survival
-                .iter()
-                .map(|&x| if x >= 0.0 { x.min(1.0) } else { 0.0 }),
-        );
-        if s.len() < 2 {
-            s.resize(2, 0.0);
-        }
-        let n = s.len() - 1;
-        if s[0] < GREATEST_U {
-            s[0] = 1.0;
-        }
-        if s[n] >= LEAST_U {
-            s[n] = 0.0;
-        }
-        // One pass down the years: the drop, the guide's buckets and the threshold of
-        // year k. S_k ≥ (b + 1)/G exactly for the buckets b below ⌊G S_k⌋ (G S_k is
-        // exact), so year k is the answer for the buckets from ⌊G S_k+1⌋ (0 for the last
-        // year) up to there: one store per bucket.
-        self.drop.clear();
+        let n = survival.len().max(2) - 1;
+        let clamped = |k: usize| match survival.get(k) {
+            Some(&x) if x >= 0.0 => x.min(1.0),
+            _ => 0.0,
+        };
+        self.threshold.resize(n + 1, 0.0);
         self.drop.resize(n, 0.0);
-        self.guide = [0; GUIDE_BUCKETS];
-        let mut from = 0;
-        let mut below = s[n];
-        s[n] = below * WORD_SCALE - 0.5;
-        for (k, (t, d)) in s[..n].iter_mut().zip(&mut self.drop).enumerate().rev() {
-            let here = *t;
-            *d = (here - below) * WORD_SCALE;
+        let (threshold, drop, guide) = (
+            &mut self.threshold[..=n],
+            &mut self.drop[..n],
+            &mut self.guide,
+        );
+        let mut below = clamped(n);
+        if below >= LEAST_U {
+            below = 0.0;
+        }
+        threshold[n] = below * WORD_SCALE - 0.5;
+        // One pass down the years: the drop and threshold of year k, and how many years
+        // k ≥ 1 have ⌊G S_k⌋ = t. A curve is forced non-increasing on the way (a cohort
+        // curve is: S_k+1 = S_k (1 − q) ≤ S_k), so S_k ≥ (b + 1)/G holds exactly for the
+        // years k up to the bucket's answer K(b): guide[b] = K(b) counts the years
+        // k ≥ 1 with ⌊G S_k⌋ > b (G S_k is exact). No branch depends on the curve: the
+        // short fills this replaced mispredicted about once a year.
+        let mut counts = [0u32; GUIDE_BUCKETS + 1];
+        let mut year = |k: usize, here: f64, below: f64| {
+            drop[k] = (here - below) * WORD_SCALE;
+            threshold[k] = here * WORD_SCALE - 0.5;
             // S_k in [0, 1]: at most G.
-            let to = (here * GUIDE_BUCKETS as f64) as i32 as usize;
-            if from < to {
-                self.guide[from..to].fill(k as u32);
-            }
-            from = to;
-            *t = here * WORD_SCALE - 0.5;
+            (here * GUIDE_BUCKETS as f64) as i32 as usize
+        };
+        for k in (1..n).rev() {
+            let here = clamped(k).max(below);
+            counts[year(k, here, below).min(GUIDE_BUCKETS)] += 1;
             below = here;
+        }
+        let mut first = clamped(0).max(below);
+        if first < GREATEST_U {
+            first = 1.0;
+        }
+        year(0, first, below);
+        let mut above = 0;
+        for (g, &count) in guide.iter_mut().zip(&counts[1..]).rev() {
+            above += count;
+            *g = above;
         }
     }
 
@@ -403,6 +409,30 @@ mod tests {
             assert_eq!(k_scaled, k, "bits {bits}");
             let f_scaled = (search.threshold[k] - w) / search.drop[k];
             assert_eq!(f_scaled.to_bits(), f.to_bits(), "bits {bits}");
+        }
+    }
+
+    #[test]
+    fn guide_is_the_last_year_at_or_above_each_buckets_edge() {
+        // guide[b] = max{k ≤ n − 1 : S_k ≥ (b + 1)/G}, or 0, by brute force, on curves
+        // with years of no deaths, points exactly on bucket edges and a steep fall.
+        let edge = |b: usize| (b + 1) as f64 / GUIDE_BUCKETS as f64;
+        let curves = [
+            vec![1.0, 1.0, 1.0, 0.9, 0.9, edge(100), edge(99), 0.2, 0.0],
+            vec![1.0, edge(254), edge(3), edge(2), 1e-9, 1e-12],
+            vec![1.0, 0.5, 0.5, 0.5, 0.0],
+        ];
+        for survival in curves {
+            let mut search = DeathSearch::default();
+            search.rebuild(&survival);
+            let n = survival.len() - 1;
+            for b in 0..GUIDE_BUCKETS {
+                let expected = (0..n).rev().find(|&k| survival[k] >= edge(b)).unwrap_or(0);
+                assert_eq!(
+                    search.guide[b] as usize, expected,
+                    "bucket {b} of {survival:?}"
+                );
+            }
         }
     }
 

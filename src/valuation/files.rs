@@ -146,7 +146,13 @@ impl ValuationFiles {
     pub fn write(&mut self, results: &[ScenarioResult]) -> Result<()> {
         write_book(&mut self.book, results)?;
 
-        let (mut scenario, mut year, mut expected, mut sim) = (vec![], vec![], vec![], vec![]);
+        let rows: usize = results.iter().map(|r| r.value.cash_expected.len()).sum();
+        let (mut scenario, mut year, mut expected, mut sim) = (
+            Vec::with_capacity(rows),
+            Vec::with_capacity(rows),
+            Vec::with_capacity(rows),
+            Vec::with_capacity(rows),
+        );
         for r in results {
             for (k, &e) in r.value.cash_expected.iter().enumerate() {
                 scenario.push(r.scenario as u32);
@@ -166,8 +172,16 @@ impl ValuationFiles {
             let rows = results
                 .iter()
                 .flat_map(|r| r.lifetimes.iter().map(move |l| (r.scenario, l)));
-            let (mut s, mut sex, mut age, mut horizon, mut ec, mut ek, mut an) =
-                (vec![], vec![], vec![], vec![], vec![], vec![], vec![]);
+            let n: usize = results.iter().map(|r| r.lifetimes.len()).sum();
+            let (mut s, mut sex, mut age, mut horizon, mut ec, mut ek, mut an) = (
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+                Vec::with_capacity(n),
+            );
             for (id, l) in rows {
                 s.push(id as u32);
                 sex.push(l.sex.code());

@@ -171,33 +171,41 @@ impl LifetimeTable {
     fn push_rows(&self, cohort: &Cohort, q: &[f64], survival: &[f64], out: &mut Vec<LifetimeRow>) {
         let years = q.len();
         let sched = &self.whole_life;
-        let survival = &survival[..=years];
-        let mut horizons = self
-            .horizons
-            .iter()
-            .copied()
-            .chain(std::iter::once(years))
-            .peekable();
+        let (levels, slopes) = (&sched.pv_level, &sched.pv_slope);
         let (mut lived, mut curtate, mut annuity) = (0.0, 0.0, sched.certain_pv);
-        for k in 0..=years {
-            while let Some(n) = horizons.next_if(|&n| n.min(years) == k) {
-                out.push(LifetimeRow {
-                    sex: cohort.sex,
-                    age: cohort.age,
-                    horizon: n as u32,
-                    e_complete: lived,
-                    e_curtate: curtate,
-                    annuity,
-                });
+        let mut k = 0;
+        let horizons = self.horizons.iter().copied();
+        for n in horizons.chain(std::iter::once(years)) {
+            // Horizons are sorted: each one's years continue the last one's.
+            let end = n.min(years);
+            let paid = end.min(sched.years).max(k);
+            let paying = q[k..paid]
+                .iter()
+                .zip(&survival[k..paid])
+                .zip(&survival[k + 1..=paid])
+                .zip(levels[k..paid].iter().zip(&slopes[k..paid]));
+            for (((&qj, &alive), &next), (&level, &slope)) in paying {
+                lived += alive * self.fractional.year_lived(qj);
+                curtate += next;
+                annuity += alive * (level - slope * qj);
             }
-            if k == years {
-                break;
+            let rest = q[paid..end]
+                .iter()
+                .zip(&survival[paid..end])
+                .zip(&survival[paid + 1..=end]);
+            for ((&qj, &alive), &next) in rest {
+                lived += alive * self.fractional.year_lived(qj);
+                curtate += next;
             }
-            lived += survival[k] * self.fractional.year_lived(q[k]);
-            curtate += survival[k + 1];
-            if k < sched.years {
-                annuity += survival[k] * (sched.pv_level[k] - sched.pv_slope[k] * q[k]);
-            }
+            k = k.max(end);
+            out.push(LifetimeRow {
+                sex: cohort.sex,
+                age: cohort.age,
+                horizon: n as u32,
+                e_complete: lived,
+                e_curtate: curtate,
+                annuity,
+            });
         }
     }
 }
