@@ -38,8 +38,9 @@ const GREATEST_U: f64 = 1.0 - LEAST_U;
 ///
 /// Invariants (set by [`Self::rebuild`], relied on by [`simulate_lives`]): the curve S
 /// has n + 1 ≥ 2 non-increasing values in [0, 1] with S_0 ≥ the greatest uniform and S_n
-/// below the least; `threshold` holds T_0 ..= T_n and `drop` the n values 2^32 (S_k − S_k+1); every
-/// guide entry g of bucket b is at most n − 1 with S_g ≥ (b + 1)/G or g = 0.
+/// below the least; `threshold` holds T_0 ..= T_n and `drop` the n values
+/// 2^32 (S_k − S_k+1); every guide entry g of bucket b is at most n − 1 with
+/// S_g ≥ (b + 1)/G or g = 0.
 #[derive(Debug, Clone)]
 pub struct DeathSearch {
     /// guide[b] = K((b + 1)/G) = max{k : S_k ≥ (b + 1)/G}: a lower bound on the death
@@ -66,9 +67,9 @@ impl DeathSearch {
     /// Prepares the search on the curve `survival` = S_0 ..= S_n.
     ///
     /// A cohort curve starts at 1, ends at 0 (q = 1 at the table's last age), never rises
-    /// and stays in [0, 1], and is then taken as it is. Anything else (a NaN from broken rates) is forced
-    /// into that form rather than read out of bounds: the figures are then meaningless, as
-    /// they would be anyway, but memory stays safe.
+    /// and stays in [0, 1], and is then taken as it is. Anything else (a NaN from broken
+    /// rates) is forced into that form rather than read out of bounds: the figures are
+    /// then meaningless, as they would be anyway, but memory stays safe.
     pub fn rebuild(&mut self, survival: &[f64]) {
         let n = survival.len().max(2) - 1;
         let clamped = |k: usize| match survival.get(k) {
