@@ -17,7 +17,7 @@ use tempfile::TempDir;
 use crate::data::Config;
 use crate::data::config::ModelKind;
 use crate::error::{Error, Result};
-use crate::hedge::HedgeResults;
+use crate::hedge::{BookSample, HedgeResults};
 use crate::io::model_column::{ModelPart, gather_models};
 use crate::io::parquet::{DEFAULT_ROWS_PER_GROUP, STREAMED_ROWS_PER_GROUP};
 use crate::io::{AtomicFile, Provenance};
@@ -209,24 +209,12 @@ pub fn compare_models(
     config: &Config,
     models: &[ValuedModel<'_>],
 ) -> Result<(Vec<ModelFigures>, ModelAverage)> {
-    let bic_by_sex: Vec<Vec<(&str, f64)>> = models
-        .iter()
-        .map(|m| {
-            m.fits
-                .fits
-                .iter()
-                .map(|(sex, fit)| (sex.code(), fit.diagnostics().bic))
-                .collect()
-        })
-        .collect();
-    let totals: Vec<f64> = bic_by_sex
-        .iter()
-        .map(|b| b.iter().map(|(_, x)| x).sum())
-        .collect();
-    let (weights, weights_from) = match &config.model.weights {
-        Some(w) => (normalized(w), "config"),
-        None => (bic_weights(&totals), "bic"),
-    };
+    let fits: Vec<&ProjectedFits> = models.iter().map(|m| m.fits).collect();
+    let ModelWeights {
+        bic_by_sex,
+        weights,
+        from: weights_from,
+    } = model_weights(config, &fits);
     let figures: Vec<ModelFigures> = models
         .iter()
         .zip(&bic_by_sex)
@@ -252,7 +240,14 @@ pub fn compare_models(
         .idiosyncratic
         .then(|| mixture("pv_simulated"))
         .transpose()?;
-    let hedges = mixture_hedges(models, &weights, levels)?;
+    let priced: Option<Vec<_>> = models
+        .iter()
+        .map(|m| m.hedges.zip(m.outcome.hedge_sample.as_ref()))
+        .collect();
+    let hedges = priced
+        .map(|priced| mixture_hedges(&priced, &weights, levels))
+        .transpose()?
+        .flatten();
     Ok((
         figures,
         ModelAverage {
@@ -266,20 +261,50 @@ pub fn compare_models(
     ))
 }
 
-/// Each hedge on the mixture, when every model priced the hedges: the book's PV sample the
-/// hedges were valued on and each contract's value to the owner, per model.
-fn mixture_hedges(
-    models: &[ValuedModel<'_>],
+/// The kinds' weights in the model average.
+pub struct ModelWeights<'f> {
+    /// Each kind's BIC by sex code.
+    pub bic_by_sex: Vec<Vec<(&'f str, f64)>>,
+    /// Each kind's weight (they sum to 1).
+    pub weights: Vec<f64>,
+    /// Where the weights came from: "config" (`model.weights`) or "bic".
+    pub from: &'static str,
+}
+
+/// Each kind's weight in the model average: `model.weights` when given, else BIC weights
+/// on the BIC summed over sexes.
+pub fn model_weights<'f>(config: &Config, fits: &[&'f ProjectedFits]) -> ModelWeights<'f> {
+    let bic_by_sex: Vec<Vec<(&str, f64)>> = fits
+        .iter()
+        .map(|f| {
+            f.fits
+                .iter()
+                .map(|(sex, fit)| (sex.code(), fit.diagnostics().bic))
+                .collect()
+        })
+        .collect();
+    let totals: Vec<f64> = bic_by_sex
+        .iter()
+        .map(|b| b.iter().map(|(_, x)| x).sum())
+        .collect();
+    let (weights, weights_from) = match &config.model.weights {
+        Some(w) => (normalized(w), "config"),
+        None => (bic_weights(&totals), "bic"),
+    };
+    ModelWeights {
+        bic_by_sex,
+        weights,
+        from: weights_from,
+    }
+}
+
+/// Each hedge on the mixture of the kinds' distributions: per kind, its hedges' values
+/// and the book's PV sample they were valued on.
+pub fn mixture_hedges(
+    priced: &[(&HedgeResults, &BookSample)],
     weights: &[f64],
     levels: &[f64],
 ) -> Result<Option<Vec<MixtureHedge>>> {
-    let mut priced = Vec::with_capacity(models.len());
-    for m in models {
-        match (m.hedges, &m.outcome.hedge_sample) {
-            (Some(h), Some(sample)) => priced.push((h, sample)),
-            _ => return Ok(None),
-        }
-    }
     let Some((first, _)) = priced.first() else {
         return Ok(None);
     };

@@ -281,6 +281,59 @@ fn each_model_equals_its_own_run_and_the_weights_follow_the_bic() {
 }
 
 #[test]
+fn hedge_prices_every_kind_as_a_multi_model_run_does() {
+    // `tailspan hedge` of two kinds against `run` of the same two (itself checked against
+    // each kind alone and the mixture recomputed above): the same hedge rows with their
+    // `model` column, each kind's prices and the mixture's.
+    let dir = tempfile::tempdir().unwrap();
+    let both = config(dir.path(), "both", "[\"lee-carter\", \"cbd\"]");
+    let (code, text) = tailspan(&["run", both.to_str().unwrap()]);
+    assert_eq!(code, 0, "{text}");
+    let run_dir = dir.path().join("run-both");
+    std::fs::rename(dir.path().join("both"), &run_dir).unwrap();
+    let (code, text) = tailspan(&["hedge", both.to_str().unwrap()]);
+    assert_eq!(code, 0, "{text}");
+    for piece in [
+        "lee-carter (weight",
+        "cbd (weight",
+        "model average (weights from bic)",
+    ] {
+        assert!(text.contains(piece), "{piece}: {text}");
+    }
+    let hedge_dir = dir.path().join("both");
+    assert_eq!(
+        rows(&hedge_dir.join("hedge.parquet")),
+        rows(&run_dir.join("hedge.parquet"))
+    );
+    let priced = json(&hedge_dir.join("hedge.json"));
+    let summary = json(&run_dir.join("summary.json"));
+    let (models, run_models) = (
+        priced["models"].as_array().unwrap(),
+        summary["models"].as_array().unwrap(),
+    );
+    assert_eq!(models.len(), 2);
+    let average = priced["model_average"]["hedges"].as_array().unwrap();
+    assert_eq!(average.len(), 3, "two swaps and a q-forward");
+    for (m, r) in models.iter().zip(run_models) {
+        assert_eq!(m["hedges"]["contracts"].as_array().unwrap().len(), 3);
+        assert_eq!(m["model"], r["model"]);
+        assert_eq!(m["weight"], r["weight"]);
+        assert_eq!(m["hedges"], r["hedges"], "{}", m["model"]);
+    }
+    assert_eq!(
+        priced["model_average"]["hedges"],
+        summary["model_average"]["hedges"]
+    );
+    assert_eq!(priced["model_average"]["weights_from"], "bic");
+    // Nothing of the staging is left beside the files.
+    let left: Vec<_> = std::fs::read_dir(&hedge_dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert!(left.iter().all(|n| !n.starts_with(".models-")), "{left:?}");
+}
+
+#[test]
 fn a_sharded_run_of_several_kinds_is_refused() {
     let dir = tempfile::tempdir().unwrap();
     let both = config(dir.path(), "both", "[\"lee-carter\", \"cbd\"]");
