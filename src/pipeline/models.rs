@@ -10,6 +10,7 @@
 //! folder; they are then gathered into the run's files with a leading `model` column
 //! (`io::model_column`), and the staging folder goes.
 
+use std::fs::File;
 use std::path::{Path, PathBuf};
 
 use tempfile::TempDir;
@@ -31,9 +32,15 @@ use crate::risk::model_average::{
 use crate::risk::order::Sample;
 use crate::risk::summary::RunSummary;
 
+/// The file in a staging folder that its run holds locked while it lives.
+const OWNER_LOCK: &str = ".owner";
+
 /// Where each kind of a multi-model run writes its own files before they are gathered.
 #[derive(Debug)]
 pub struct Staging {
+    /// Held locked until the run drops the folder (declared first: closed before the
+    /// folder is removed).
+    _owner: File,
     dir: TempDir,
 }
 
@@ -46,16 +53,53 @@ impl Staging {
         }
         let folder = config.output_folder();
         std::fs::create_dir_all(&folder).map_err(|e| Error::io(&folder, e))?;
+        retire_abandoned(&folder);
         let dir = tempfile::Builder::new()
-            .prefix(".models-")
+            .prefix(STAGING_PREFIX)
             .tempdir_in(&folder)
             .map_err(|e| Error::io(&folder, e))?;
-        Ok(Some(Staging { dir }))
+        // Locked under another name and then renamed: a run looking for abandoned
+        // folders never finds this one's lock file unlocked.
+        let taking = dir.path().join(".owner-taking");
+        let owner = File::create(&taking).map_err(|e| Error::io(&taking, e))?;
+        owner.lock().map_err(|e| Error::io(&taking, e))?;
+        let lock = dir.path().join(OWNER_LOCK);
+        std::fs::rename(&taking, &lock).map_err(|e| Error::io(&lock, e))?;
+        Ok(Some(Staging { _owner: owner, dir }))
     }
 
     /// The folder of `kind`'s own files.
     pub fn folder(&self, kind: ModelKind) -> PathBuf {
         self.dir.path().join(kind.name())
+    }
+}
+
+/// Name prefix of the staging folders.
+const STAGING_PREFIX: &str = ".models-";
+
+/// Removes the staging folders in `folder` that no live run owns: those a killed run
+/// left (its lock went with its process). A folder whose lock is held, or that has no
+/// lock file yet, is left alone; so is anything that cannot be read or removed.
+fn retire_abandoned(folder: &Path) {
+    let Ok(entries) = std::fs::read_dir(folder) else {
+        return;
+    };
+    for entry in entries.flatten() {
+        if !entry
+            .file_name()
+            .to_string_lossy()
+            .starts_with(STAGING_PREFIX)
+        {
+            continue;
+        }
+        let path = entry.path();
+        let Ok(lock) = File::open(path.join(OWNER_LOCK)) else {
+            continue;
+        };
+        if lock.try_lock().is_ok() {
+            drop(lock);
+            let _ = std::fs::remove_dir_all(&path);
+        }
     }
 }
 

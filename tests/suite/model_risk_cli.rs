@@ -291,8 +291,24 @@ fn hedge_prices_every_kind_as_a_multi_model_run_does() {
     assert_eq!(code, 0, "{text}");
     let run_dir = dir.path().join("run-both");
     std::fs::rename(dir.path().join("both"), &run_dir).unwrap();
+    // A killed run's staging folder (its lock free) goes; a live run's (held) stays.
+    let hedge_dir = dir.path().join("both");
+    let (abandoned, live) = (
+        hedge_dir.join(".models-abandoned"),
+        hedge_dir.join(".models-live"),
+    );
+    for folder in [&abandoned, &live] {
+        std::fs::create_dir_all(folder.join("cbd")).unwrap();
+        std::fs::write(folder.join("cbd").join("hedge.parquet"), b"part").unwrap();
+        std::fs::write(folder.join(".owner"), b"").unwrap();
+    }
+    let held = std::fs::File::open(live.join(".owner")).unwrap();
+    held.lock().unwrap();
     let (code, text) = tailspan(&["hedge", both.to_str().unwrap()]);
     assert_eq!(code, 0, "{text}");
+    assert!(!abandoned.exists() && live.join("cbd").exists());
+    drop(held);
+    std::fs::remove_dir_all(&live).unwrap();
     for piece in [
         "lee-carter (weight",
         "cbd (weight",
@@ -300,7 +316,6 @@ fn hedge_prices_every_kind_as_a_multi_model_run_does() {
     ] {
         assert!(text.contains(piece), "{piece}: {text}");
     }
-    let hedge_dir = dir.path().join("both");
     assert_eq!(
         rows(&hedge_dir.join("hedge.parquet")),
         rows(&run_dir.join("hedge.parquet"))
