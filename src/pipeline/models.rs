@@ -39,8 +39,8 @@ const OWNER_LOCK: &str = ".owner";
 #[derive(Debug)]
 pub struct Staging {
     /// Held locked until the run drops the folder (declared first: closed before the
-    /// folder is removed).
-    _owner: File,
+    /// folder is removed); none where the file system cannot lock.
+    _owner: Option<File>,
     dir: TempDir,
 }
 
@@ -58,20 +58,31 @@ impl Staging {
             .prefix(STAGING_PREFIX)
             .tempdir_in(&folder)
             .map_err(|e| Error::io(&folder, e))?;
-        // Locked under another name and then renamed: a run looking for abandoned
-        // folders never finds this one's lock file unlocked.
-        let taking = dir.path().join(".owner-taking");
-        let owner = File::create(&taking).map_err(|e| Error::io(&taking, e))?;
-        owner.lock().map_err(|e| Error::io(&taking, e))?;
-        let lock = dir.path().join(OWNER_LOCK);
-        std::fs::rename(&taking, &lock).map_err(|e| Error::io(&lock, e))?;
-        Ok(Some(Staging { _owner: owner, dir }))
+        Ok(Some(Staging {
+            _owner: take_ownership(dir.path()),
+            dir,
+        }))
     }
 
     /// The folder of `kind`'s own files.
     pub fn folder(&self, kind: ModelKind) -> PathBuf {
         self.dir.path().join(kind.name())
     }
+}
+
+/// Locks the owner file of the staging folder `dir`. It is locked under another name and
+/// then renamed, so a run looking for abandoned folders never finds it unlocked; where
+/// the file system cannot lock, the folder gets no owner file and is never taken for
+/// abandoned (a killed run's then stays, as before).
+fn take_ownership(dir: &Path) -> Option<File> {
+    let taking = dir.join(".owner-taking");
+    let owner = File::create(&taking).ok()?;
+    if owner.lock().is_err() {
+        let _ = std::fs::remove_file(&taking);
+        return None;
+    }
+    std::fs::rename(&taking, dir.join(OWNER_LOCK)).ok()?;
+    Some(owner)
 }
 
 /// Name prefix of the staging folders.
