@@ -323,9 +323,11 @@ impl FittedModel for ApcFit {
         let (first, n) = (self.basis.ages.first, self.ax.len());
         let central = self.basis.closure.central_cells(first, n, cells.clone());
         let (ax, gamma) = (&self.ax[central.clone()], &gamma_by_age[central.clone()]);
-        for ((m, a), g) in out[central].iter_mut().zip(ax).zip(gamma) {
-            *m = (a + k + g).exp();
+        let log_rates = &mut out[central];
+        for ((m, a), g) in log_rates.iter_mut().zip(ax).zip(gamma) {
+            *m = a + k + g;
         }
+        crate::life::exp::exp_in_place(log_rates);
         self.basis.closure.close_cells(first, n, cells, out);
     }
 

@@ -603,9 +603,11 @@ impl FittedModel for RenshawHabermanFit {
     ) {
         let k = factors[0];
         let (first, n) = (self.basis.ages.first, self.ax.len());
-        for i in self.basis.closure.central_cells(first, n, cells.clone()) {
-            out[i] = (self.ax[i] + self.bx[i] * k + self.b0x[i] * gamma_by_age[i]).exp();
+        let central = self.basis.closure.central_cells(first, n, cells.clone());
+        for i in central.clone() {
+            out[i] = self.ax[i] + self.bx[i] * k + self.b0x[i] * gamma_by_age[i];
         }
+        crate::life::exp::exp_in_place(&mut out[central]);
         self.basis.closure.close_cells(first, n, cells, out);
     }
 
