@@ -41,8 +41,8 @@ pub fn load(config: &Config, path: &Path) -> Result<Experience> {
         let Some(slot) = config.data.sexes.iter().position(|&s| s == sex) else {
             continue;
         };
-        ages[slot] = Some(widen(ages[slot], age));
-        years = Some(widen(years, year));
+        ages[slot] = Some(Span::widened(ages[slot], age));
+        years = Some(Span::widened(years, year));
     }
     let file_error = |rule: String| table.file_error(rule);
     for (slot, held) in ages.iter().enumerate() {
@@ -98,18 +98,4 @@ pub fn load(config: &Config, path: &Path) -> Result<Experience> {
         }
         other => other,
     })
-}
-
-/// `span` widened to hold `value`.
-fn widen(span: Option<Span>, value: i32) -> Span {
-    match span {
-        None => Span {
-            first: value,
-            last: value,
-        },
-        Some(s) => Span {
-            first: s.first.min(value),
-            last: s.last.max(value),
-        },
-    }
 }

@@ -232,11 +232,11 @@ impl PublishedTable {
                     ),
                 ));
             }
-            table.years = Some(extend(table.years, year));
+            table.years = Some(Span::widened(table.years, year));
             if open {
                 table.open_age = Some(table.open_age.map_or(age, |a: i32| a.min(age)));
             } else {
-                table.ages = Some(extend(table.ages, age));
+                table.ages = Some(Span::widened(table.ages, age));
             }
             table.rows.insert(
                 (year, age),
@@ -473,20 +473,6 @@ fn figure(text: &str) -> std::result::Result<f64, String> {
         return Err(format!("must not be negative, found {value}"));
     }
     Ok(value)
-}
-
-/// `span` widened to hold `value`.
-fn extend(span: Option<Span>, value: i32) -> Span {
-    match span {
-        None => Span {
-            first: value,
-            last: value,
-        },
-        Some(s) => Span {
-            first: s.first.min(value),
-            last: s.last.max(value),
-        },
-    }
 }
 
 #[cfg(test)]

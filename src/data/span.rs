@@ -17,6 +17,20 @@ impl Span {
         (last >= first).then_some(Span { first, last })
     }
 
+    /// `span` widened to hold `value` (the span of `value` alone when there is none yet).
+    pub fn widened(span: Option<Span>, value: i32) -> Span {
+        match span {
+            None => Span {
+                first: value,
+                last: value,
+            },
+            Some(s) => Span {
+                first: s.first.min(value),
+                last: s.last.max(value),
+            },
+        }
+    }
+
     /// Number of values in the span.
     pub fn len(&self) -> usize {
         (self.last - self.first + 1) as usize
