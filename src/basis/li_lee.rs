@@ -21,6 +21,7 @@ use serde::Serialize;
 
 use crate::data::{Population, Sex, Span};
 use crate::error::{Error, Result};
+use crate::models::lee_carter::{centre, first_component};
 use crate::series::{Ar1, RandomWalk};
 
 /// The closed-form parameters of one sex.
@@ -49,7 +50,7 @@ pub fn components(log_rates: [&DMatrix<f64>; 2], combined: &DMatrix<f64>) -> Res
         ));
     }
     let (_, combined_centred) = centre(combined);
-    let (common_loading, common_index) = first_component(&combined_centred, "the combined")?;
+    let (common_loading, common_index) = normalised_component(combined_centred, "the combined")?;
     let common = &common_loading * common_index.transpose();
     let mut level = [DVector::zeros(0), DVector::zeros(0)];
     let mut own_loading = level.clone();
@@ -57,7 +58,7 @@ pub fn components(log_rates: [&DMatrix<f64>; 2], combined: &DMatrix<f64>) -> Res
     for (i, rates) in log_rates.iter().enumerate() {
         let (a, centred) = centre(rates);
         let residual = centred - &common;
-        let (b, k) = first_component(&residual, ["the index", "the book's"][i])?;
+        let (b, k) = normalised_component(residual, ["the index", "the book's"][i])?;
         level[i] = a;
         own_loading[i] = b;
         own_index[i] = k;
@@ -71,37 +72,17 @@ pub fn components(log_rates: [&DMatrix<f64>; 2], combined: &DMatrix<f64>) -> Res
     })
 }
 
-/// Each row's time average, and the matrix less it.
-fn centre(log_rates: &DMatrix<f64>) -> (DVector<f64>, DMatrix<f64>) {
-    let a = log_rates.column_sum() / log_rates.ncols() as f64;
-    let mut centred = log_rates.clone();
-    for mut column in centred.column_iter_mut() {
-        column -= &a;
-    }
-    (a, centred)
-}
-
-/// The first singular component s₁ u₁ v₁ᵀ of `matrix` as (u₁ / Σu₁, s₁ Σu₁ v₁).
-fn first_component(matrix: &DMatrix<f64>, whose: &str) -> Result<(DVector<f64>, DVector<f64>)> {
-    let svd = matrix.clone().svd(true, true);
-    let (Some(u), Some(v_t)) = (svd.u.as_ref(), svd.v_t.as_ref()) else {
-        return Err(Error::Numerical(
-            "singular value decomposition failed".into(),
-        ));
-    };
-    let s1 = svd.singular_values[0];
-    let u1 = u.column(0);
-    let scale = u1.sum();
-    if !(s1.is_finite() && s1 > 0.0 && scale.is_finite() && scale.abs() >= 1e-8 * u1.norm()) {
-        return Err(Error::model(
+/// [`first_component`] of `matrix`, or an error naming `whose` population it failed for.
+fn normalised_component(matrix: DMatrix<f64>, whose: &str) -> Result<(DVector<f64>, DVector<f64>)> {
+    first_component(matrix)?.ok_or_else(|| {
+        Error::model(
             "li-lee",
             format!(
                 "the leading age pattern of {whose} population's log rates sums to zero (or \
                  there is none), so it cannot be normalised to sum to 1"
             ),
-        ));
-    }
-    Ok((u1 / scale, v_t.row(0).transpose() * (s1 * scale)))
+        )
+    })
 }
 
 /// The common index's random walk with drift, as reported.

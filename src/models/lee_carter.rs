@@ -366,13 +366,35 @@ fn observed_log_rates(population: &Population) -> Result<DMatrix<f64>> {
 
 /// SVD fit of a complete log-rate matrix: (a, b, k) normalised to Σb = 1, Σk = 0.
 fn svd_fit(log_rates: &DMatrix<f64>) -> Result<Parameters> {
-    let n_years = log_rates.ncols();
-    let ax = log_rates.column_sum() / n_years as f64;
+    let (ax, centred) = centre(log_rates);
+    let (bx, kt) = first_component(centred)?.ok_or_else(|| {
+        Error::model(
+            NAME,
+            "the leading age pattern of the centred log rates sums to zero, so it cannot be \
+             normalised to Σ b_x = 1 (no common trend across ages)",
+        )
+    })?;
+    Ok((ax, bx, kt))
+}
+
+/// Each row's time average a, and the matrix less it (the centring of Lee & Carter's SVD
+/// fit, which Li & Lee's fit repeats per population).
+pub(crate) fn centre(log_rates: &DMatrix<f64>) -> (DVector<f64>, DMatrix<f64>) {
+    let a = log_rates.column_sum() / log_rates.ncols() as f64;
     let mut centred = log_rates.clone();
-    for mut col in centred.column_iter_mut() {
-        col -= &ax;
+    for mut column in centred.column_iter_mut() {
+        column -= &a;
     }
-    let svd = centred.svd(true, true);
+    (a, centred)
+}
+
+/// The first singular component s₁ u₁ v₁ᵀ of `matrix` as (u₁ / Σu₁, s₁ Σu₁ v₁): loadings
+/// summing to 1 and the index. `None` when it cannot be so normalised (Σu₁ about zero
+/// beside |u₁|, or no positive finite s₁).
+pub(crate) fn first_component(
+    matrix: DMatrix<f64>,
+) -> Result<Option<(DVector<f64>, DVector<f64>)>> {
+    let svd = matrix.svd(true, true);
     let (Some(u), Some(v_t)) = (svd.u.as_ref(), svd.v_t.as_ref()) else {
         return Err(Error::Numerical(
             "singular value decomposition failed".into(),
@@ -381,16 +403,10 @@ fn svd_fit(log_rates: &DMatrix<f64>) -> Result<Parameters> {
     let s1 = svd.singular_values[0];
     let u1 = u.column(0);
     let scale = u1.sum();
-    if s1.is_nan() || s1 <= 0.0 || scale.is_nan() || scale.abs() < 1e-8 * u1.norm() {
-        return Err(Error::model(
-            NAME,
-            "the leading age pattern of the centred log rates sums to zero, so it cannot be \
-             normalised to Σ b_x = 1 (no common trend across ages)",
-        ));
+    if !(s1.is_finite() && s1 > 0.0 && scale.is_finite() && scale.abs() >= 1e-8 * u1.norm()) {
+        return Ok(None);
     }
-    let bx = u1 / scale;
-    let kt = v_t.row(0).transpose() * (s1 * scale);
-    Ok((ax, bx, kt))
+    Ok(Some((u1 / scale, v_t.row(0).transpose() * (s1 * scale))))
 }
 
 /// Second stage of Lee & Carter (1992): for each year, solve
