@@ -86,28 +86,12 @@ pub fn exp_m1(x: f64) -> f64 {
 
 /// Replaces every x of `xs` by e^x.
 pub fn exp_in_place(xs: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2.
-        unsafe { exp_in_place_avx2(xs) };
-        return;
-    }
-    for x in xs {
-        *x = exp(*x);
-    }
+    map_in_place(xs, exp);
 }
 
 /// Replaces every m of `ms` by 1 − e^−m, the one-year rate q of a constant force m.
 pub fn q_from_force_in_place(ms: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: the CPU has AVX2.
-        unsafe { q_from_force_in_place_avx2(ms) };
-        return;
-    }
-    for m in ms {
-        *m = q_from_force(*m);
-    }
+    map_in_place(ms, q_from_force);
 }
 
 /// 1 − e^−m: the one-year rate q of a constant force m.
@@ -116,27 +100,30 @@ pub fn q_from_force(m: f64) -> f64 {
     -exp_m1(-m)
 }
 
-/// [`exp_in_place`] compiled for AVX2: four lanes, the same operations, the same bits.
-///
-/// # Safety
-/// The CPU has AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-unsafe fn exp_in_place_avx2(xs: &mut [f64]) {
+/// Applies `f` to every element of `xs`, in a loop compiled for AVX2 where the CPU has it:
+/// four lanes, the same operations, the same bits.
+#[inline(always)]
+fn map_in_place(xs: &mut [f64], f: impl Fn(f64) -> f64) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: the CPU has AVX2.
+        unsafe { map_in_place_avx2(xs, f) };
+        return;
+    }
     for x in xs {
-        *x = exp(*x);
+        *x = f(*x);
     }
 }
 
-/// [`q_from_force_in_place`] compiled for AVX2.
+/// [`map_in_place`]'s loop compiled for AVX2.
 ///
 /// # Safety
 /// The CPU has AVX2.
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-unsafe fn q_from_force_in_place_avx2(ms: &mut [f64]) {
-    for m in ms {
-        *m = q_from_force(*m);
+unsafe fn map_in_place_avx2(xs: &mut [f64], f: impl Fn(f64) -> f64) {
+    for x in xs {
+        *x = f(*x);
     }
 }
 
