@@ -176,28 +176,20 @@ impl LifetimeTable {
         let mut k = 0;
         let horizons = self.horizons.iter().copied();
         for n in horizons.chain(std::iter::once(years)) {
-            // Horizons are sorted: each one's years continue the last one's.
+            // Horizons are sorted: each one's years continue the last one's. The schedule
+            // covers the youngest cohort's years (`new`), so every cohort's.
             let end = n.min(years);
-            let paid = end.min(sched.years).max(k);
-            let paying = q[k..paid]
+            let year_by_year = q[k..end]
                 .iter()
-                .zip(&survival[k..paid])
-                .zip(&survival[k + 1..=paid])
-                .zip(levels[k..paid].iter().zip(&slopes[k..paid]));
-            for (((&qj, &alive), &next), (&level, &slope)) in paying {
+                .zip(&survival[k..end])
+                .zip(&survival[k + 1..=end])
+                .zip(levels[k..end].iter().zip(&slopes[k..end]));
+            for (((&qj, &alive), &next), (&level, &slope)) in year_by_year {
                 lived += alive * self.fractional.year_lived(qj);
                 curtate += next;
                 annuity += alive * (level - slope * qj);
             }
-            let rest = q[paid..end]
-                .iter()
-                .zip(&survival[paid..end])
-                .zip(&survival[paid + 1..=end]);
-            for ((&qj, &alive), &next) in rest {
-                lived += alive * self.fractional.year_lived(qj);
-                curtate += next;
-            }
-            k = k.max(end);
+            k = end;
             out.push(LifetimeRow {
                 sex: cohort.sex,
                 age: cohort.age,
