@@ -109,21 +109,23 @@ fn bench(c: &mut Criterion) {
         provenance: Provenance::new(config.projection.seed, SCENARIOS as usize, Vec::new()),
     };
     let extracts = Extracts::default();
-    group.bench_function("value-one-per-cohort", |b| {
-        b.iter(|| {
-            one_thread.install(|| {
-                let request = ValueRequest {
-                    ids: 1..SCENARIOS + 1,
-                    options: &options,
-                    hedges: None,
-                    report: false,
-                    extracts: &extracts,
-                };
-                let (outcome, files) =
-                    value_book(&config, &small, &projector, &request, &|_| {}).expect("value");
-                black_box((outcome.stochastic, files.len()))
-            })
+    // `tailspan value`'s work for scenarios `ids` of `setup`, on one thread.
+    let value = |setup: &ValuationSetup, ids: std::ops::Range<u64>| {
+        one_thread.install(|| {
+            let request = ValueRequest {
+                ids,
+                options: &options,
+                hedges: None,
+                report: false,
+                extracts: &extracts,
+            };
+            let (outcome, files) =
+                value_book(&config, setup, &projector, &request, &|_| {}).expect("value");
+            black_box((outcome.stochastic, files.len()))
         })
+    };
+    group.bench_function("value-one-per-cohort", |b| {
+        b.iter(|| value(&small, 1..SCENARIOS + 1))
     });
     group.finish();
 
@@ -135,20 +137,7 @@ fn bench(c: &mut Criterion) {
     let large = ValuationSetup::new(&config, bench_book, &projector).expect("valuation setup");
     let ids = 1..BENCH_BOOK_SCENARIOS + 1;
     group.bench_function("value-bench-book", |b| {
-        b.iter(|| {
-            one_thread.install(|| {
-                let request = ValueRequest {
-                    ids: ids.clone(),
-                    options: &options,
-                    hedges: None,
-                    report: false,
-                    extracts: &extracts,
-                };
-                let (outcome, files) =
-                    value_book(&config, &large, &projector, &request, &|_| {}).expect("value");
-                black_box((outcome.stochastic, files.len()))
-            })
-        })
+        b.iter(|| value(&large, ids.clone()))
     });
     let cells = ScenarioCells::new(
         &projector,

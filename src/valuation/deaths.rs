@@ -267,17 +267,23 @@ unsafe fn lives<const ROUND: bool>(
 mod tests {
     use super::*;
 
+    /// A Gompertz-like survival curve: q_k = q0 growth^k for `years` years, then 0.
+    fn gompertz_curve(q0: f64, growth: f64, years: i32) -> Vec<f64> {
+        let mut survival = vec![1.0];
+        let mut alive: f64 = 1.0;
+        for k in 0..years {
+            alive *= 1.0 - (q0 * growth.powi(k)).min(1.0);
+            survival.push(alive);
+        }
+        survival.push(0.0);
+        survival
+    }
+
     #[test]
     fn guide_starts_at_or_below_the_death_year() {
         // Brute force: for uniforms at every bucket's edges and inside, the guide's start
         // is at most the death year found by a scan from 0, on a Gompertz-like curve.
-        let mut survival = vec![1.0];
-        let mut alive: f64 = 1.0;
-        for k in 0..40 {
-            alive *= 1.0 - (0.01 * 1.12f64.powi(k)).min(1.0);
-            survival.push(alive);
-        }
-        survival.push(0.0);
+        let survival = gompertz_curve(0.01, 1.12, 40);
         let mut search = DeathSearch::default();
         search.rebuild(&survival);
         for bits in (0..=u32::MAX).step_by(1 << 20).chain([u32::MAX, 1, 0]) {
@@ -296,13 +302,7 @@ mod tests {
         use crate::interest::{DiscountCurve, Timing};
         use crate::valuation::schedule::{Basis, PaymentShape, Schedule};
         use rand::{Rng, SeedableRng};
-        let mut survival = vec![1.0];
-        let mut alive: f64 = 1.0;
-        for k in 0..30 {
-            alive *= 1.0 - (0.02 * 1.15f64.powi(k)).min(1.0);
-            survival.push(alive);
-        }
-        survival.push(0.0);
+        let survival = gompertz_curve(0.02, 1.15, 30);
         let mut search = DeathSearch::default();
         search.rebuild(&survival);
         for (timing, m) in [
